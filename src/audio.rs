@@ -1,0 +1,123 @@
+//! Audio in (symphonia) and out (hound), and the mono buffer every step works on.
+//!
+//! Steps work on one channel: a multichannel file is reduced when it is decoded, by the
+//! recipe's [`ChannelPolicy`].
+
+use std::path::{Path, PathBuf};
+
+use serde::{Deserialize, Serialize};
+
+/// Mono samples in [-1, 1] at a known rate.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Audio {
+    /// Samples per second.
+    pub rate: u32,
+    /// The samples, nominally in [-1, 1].
+    pub samples: Vec<f32>,
+}
+
+impl Audio {
+    /// Length in seconds.
+    pub fn duration(&self) -> f64 {
+        self.samples.len() as f64 / f64::from(self.rate)
+    }
+}
+
+/// How a multichannel file becomes the one channel steps work on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "lowercase")]
+pub enum ChannelPolicy {
+    /// The mean of all channels.
+    #[default]
+    Mix,
+    /// One channel, counted from 0.
+    Pick(usize),
+}
+
+/// Sample format of written WAV files.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "lowercase")]
+pub enum SampleFormat {
+    /// 16-bit signed PCM (rounded, clamped to the 16-bit range).
+    #[default]
+    Pcm16,
+    /// 32-bit IEEE float.
+    Float32,
+}
+
+/// What went wrong reading or writing audio, always with the file.
+#[derive(Debug, thiserror::Error)]
+pub enum AudioError {
+    /// The file could not be opened or read.
+    #[error("{path}: {source}")]
+    Io {
+        /// The file.
+        path: PathBuf,
+        /// The underlying error.
+        source: std::io::Error,
+    },
+    /// The decoder could not make sense of the file.
+    #[error("{path}: cannot decode: {reason}")]
+    Decode {
+        /// The file.
+        path: PathBuf,
+        /// What the decoder said.
+        reason: String,
+    },
+    /// The file holds fewer frames than its header declares.
+    #[error("{path}: truncated: header declares {declared} frames, only {found} present")]
+    Truncated {
+        /// The file.
+        path: PathBuf,
+        /// Frames the header promises.
+        declared: u64,
+        /// Frames actually decoded.
+        found: u64,
+    },
+    /// The recipe picks a channel the file does not have.
+    #[error("{path}: channel {wanted} requested, file has {channels}")]
+    NoSuchChannel {
+        /// The file.
+        path: PathBuf,
+        /// Channel asked for (from 0).
+        wanted: usize,
+        /// Channels in the file.
+        channels: usize,
+    },
+    /// A sample to be written is NaN or infinite.
+    #[error("{path}: sample {index} is not finite")]
+    NotFinite {
+        /// The file.
+        path: PathBuf,
+        /// Index of the first bad sample.
+        index: usize,
+    },
+    /// The WAV writer failed.
+    #[error("{path}: cannot write: {reason}")]
+    Write {
+        /// The file.
+        path: PathBuf,
+        /// What the writer said.
+        reason: String,
+    },
+}
+
+/// Decode a file (WAV PCM 8/16/24/32 and float, FLAC, MP3, Ogg Vorbis) to one channel.
+///
+/// # Errors
+/// Missing or unreadable file, an undecodable or truncated stream, or a picked channel the
+/// file lacks.
+pub fn decode(path: &Path, channels: ChannelPolicy) -> Result<Audio, AudioError> {
+    let _ = (path, channels);
+    todo!("audio::decode")
+}
+
+/// Write a WAV file in the given format. The caller picks the name (the runner writes to a
+/// temporary name and renames).
+///
+/// # Errors
+/// A non-finite sample (nothing is written) or a failing writer.
+pub fn write_wav(path: &Path, audio: &Audio, format: SampleFormat) -> Result<(), AudioError> {
+    let _ = (path, audio, format);
+    todo!("audio::write_wav")
+}

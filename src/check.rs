@@ -1,0 +1,1 @@
+//! Validation of a manifest and its audio (to be written).

@@ -1,0 +1,48 @@
+//! Levels: peak and RMS in linear terms and in dBFS, computed in f64.
+
+/// Largest absolute sample value (0 for an empty slice).
+pub fn peak(samples: &[f32]) -> f64 {
+    samples
+        .iter()
+        .fold(0.0f64, |m, &s| m.max(f64::from(s).abs()))
+}
+
+/// Mean power (mean of squares) in f64 (0 for an empty slice).
+pub fn power(samples: &[f32]) -> f64 {
+    if samples.is_empty() {
+        return 0.0;
+    }
+    samples
+        .iter()
+        .map(|&s| f64::from(s) * f64::from(s))
+        .sum::<f64>()
+        / samples.len() as f64
+}
+
+/// A linear amplitude in dB relative to full scale (1.0). Zero gives negative infinity.
+pub fn amplitude_db(a: f64) -> f64 {
+    20.0 * a.log10()
+}
+
+/// A dB value as a linear amplitude factor.
+pub fn db_to_amplitude(db: f64) -> f64 {
+    10f64.powf(db / 20.0)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn full_scale_sine_is_minus_3_dbfs_rms() {
+        // A sine of amplitude 1 has RMS 1/sqrt(2), i.e. -3.01 dB (textbook identity).
+        let x: Vec<f32> = (0..16000)
+            .map(|i| (2.0 * std::f64::consts::PI * 1000.0 * i as f64 / 16000.0).sin() as f32)
+            .collect();
+        let rms_db = 10.0 * power(&x).log10();
+        assert!((rms_db + 3.0103).abs() < 0.001, "{rms_db}");
+        assert!((peak(&x) - 1.0).abs() < 1e-6);
+        assert!((db_to_amplitude(-6.0206) - 0.5).abs() < 1e-4);
+        assert!((amplitude_db(0.5) + 6.0206).abs() < 1e-3);
+    }
+}

@@ -1,0 +1,533 @@
+//! The recipe: a TOML file turned into a validated [`Plan`] before any audio is touched.
+//!
+//! Every error names the file, the line and the key:
+//! `recipe.toml line 12: step 2 (gain): db: range low 6 is above high -6`.
+//!
+//! ```toml
+//! seed = 2026            # the run's seed; with the clip id and take index it fixes each take
+//! takes = 4              # takes per clip (take 0 included)
+//! keep_source = true     # take 0 is the source, only resampled to `rate`
+//! rate = 16000           # output sample rate, Hz
+//! format = "pcm16"       # or "float32"
+//! channels = "mix"       # or a channel number counted from 0
+//!
+//! [[step]]
+//! do = "speed"
+//! factor = [0.9, 1.0, 1.1]   # a list: one value picked per take
+//!
+//! [[step]]
+//! do = "gain"
+//! db = { low = -6.0, high = 6.0 }   # a range: uniform per take
+//! chance = 0.5                      # the step runs in half the takes
+//! ```
+
+use std::collections::BTreeSet;
+use std::path::{Path, PathBuf};
+
+use toml::Spanned;
+use toml::de::{DeTable, DeValue};
+
+use crate::audio::{ChannelPolicy, SampleFormat};
+use crate::seed::TakeRng;
+use crate::steps::{self, Step};
+
+/// A recipe problem, located in the file.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[error("{}{}: {message}", path.display(), line.map(|l| format!(" line {l}")).unwrap_or_default())]
+pub struct RecipeError {
+    /// The recipe file.
+    pub path: PathBuf,
+    /// 1-based line of the offending key or value, when known.
+    pub line: Option<usize>,
+    /// What is wrong, starting with where in the recipe (`step 2 (gain): db: ...`).
+    pub message: String,
+}
+
+/// How one step parameter is chosen per take.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Draw {
+    /// Always this value.
+    Fixed(f64),
+    /// One of these, each equally likely.
+    Pick(Vec<f64>),
+    /// Uniform between `low` and `high` (inclusive).
+    Uniform {
+        /// Lowest value.
+        low: f64,
+        /// Highest value.
+        high: f64,
+    },
+}
+
+impl Draw {
+    /// One value for one take.
+    pub fn sample(&self, rng: &mut TakeRng) -> f64 {
+        match self {
+            Draw::Fixed(v) => *v,
+            Draw::Pick(vs) => vs[rng.index(vs.len())],
+            Draw::Uniform { low, high } => rng.uniform(*low, *high),
+        }
+    }
+
+    /// Every value the draw can give lies in `[lo, hi]`.
+    pub fn within(&self, lo: f64, hi: f64) -> bool {
+        let (a, b) = self.bounds();
+        a >= lo && b <= hi
+    }
+
+    /// Smallest and largest value the draw can give.
+    pub fn bounds(&self) -> (f64, f64) {
+        match self {
+            Draw::Fixed(v) => (*v, *v),
+            Draw::Pick(vs) => vs
+                .iter()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
+                    (a.min(v), b.max(v))
+                }),
+            Draw::Uniform { low, high } => (*low, *high),
+        }
+    }
+}
+
+/// One step of the plan with the chance that it runs in a take.
+#[derive(Debug)]
+pub struct PlannedStep {
+    /// The step, with its draws.
+    pub step: Box<dyn Step>,
+    /// Probability in [0, 1] that the step runs in a given take.
+    pub chance: f64,
+}
+
+/// A recipe, fully checked.
+#[derive(Debug)]
+pub struct Plan {
+    /// The run's seed.
+    pub seed: u64,
+    /// Takes per clip, take 0 included.
+    pub takes: u32,
+    /// Take 0 is the source, only resampled.
+    pub keep_source: bool,
+    /// Output sample rate in Hz.
+    pub rate: u32,
+    /// Output sample format.
+    pub format: SampleFormat,
+    /// How multichannel input becomes mono.
+    pub channels: ChannelPolicy,
+    /// The steps, in order.
+    pub steps: Vec<PlannedStep>,
+}
+
+/// Parameters of one `[[step]]` table, handed to the step's parser. Each key is taken once;
+/// [`Params::finish`] then reports any key nobody took, so a misspelt key is an error.
+pub struct Params<'a> {
+    ctx: &'a Ctx<'a>,
+    label: String,
+    table: &'a DeTable<'a>,
+    table_line: usize,
+    taken: BTreeSet<String>,
+}
+
+struct Ctx<'a> {
+    path: &'a Path,
+    text: &'a str,
+}
+
+impl Ctx<'_> {
+    fn line_of(&self, offset: usize) -> usize {
+        self.text[..offset.min(self.text.len())]
+            .matches('\n')
+            .count()
+            + 1
+    }
+
+    fn err(&self, line: Option<usize>, message: String) -> RecipeError {
+        RecipeError {
+            path: self.path.to_path_buf(),
+            line,
+            message,
+        }
+    }
+}
+
+impl<'a> Params<'a> {
+    /// A located error about `key` (or about the step when the key is absent).
+    pub fn error(&self, key: &str, message: impl std::fmt::Display) -> RecipeError {
+        let line = self
+            .find(key)
+            .map(|(k, _)| self.ctx.line_of(k.span().start));
+        self.ctx.err(
+            Some(line.unwrap_or(self.table_line)),
+            format!("{}: {key}: {message}", self.label),
+        )
+    }
+
+    fn find(
+        &self,
+        key: &str,
+    ) -> Option<(
+        &'a Spanned<toml::de::DeString<'a>>,
+        &'a Spanned<DeValue<'a>>,
+    )> {
+        self.table.iter().find(|(k, _)| k.get_ref() == key)
+    }
+
+    fn take(&mut self, key: &str) -> Option<&'a Spanned<DeValue<'a>>> {
+        let found = self.find(key).map(|(_, v)| v);
+        if found.is_some() {
+            self.taken.insert(key.to_string());
+        }
+        found
+    }
+
+    /// A draw under `key`, or `default` when the key is absent.
+    ///
+    /// # Errors
+    /// A value that is not a number, a list of numbers or `{ low, high }` with low <= high.
+    pub fn draw(&mut self, key: &str, default: Option<Draw>) -> Result<Draw, RecipeError> {
+        match self.take(key) {
+            None => default.ok_or_else(|| self.error(key, "missing; this step needs it")),
+            Some(v) => parse_draw(v.get_ref()).map_err(|m| self.error(key, m)),
+        }
+    }
+
+    /// A single number under `key`, or `default` when absent.
+    ///
+    /// # Errors
+    /// A value that is not a finite number.
+    pub fn number(&mut self, key: &str, default: f64) -> Result<f64, RecipeError> {
+        match self.take(key) {
+            None => Ok(default),
+            Some(v) => number(v.get_ref()).map_err(|m| self.error(key, m)),
+        }
+    }
+
+    /// Report keys that no parser took.
+    ///
+    /// # Errors
+    /// The first unknown key, with the keys this step does know.
+    pub fn finish(self) -> Result<(), RecipeError> {
+        for (k, _) in self.table.iter() {
+            let name = k.get_ref().as_ref();
+            if name != "do" && name != "chance" && !self.taken.contains(name) {
+                let mut known: Vec<&str> = self.taken.iter().map(String::as_str).collect();
+                known.extend(["do", "chance"]);
+                return Err(self.ctx.err(
+                    Some(self.ctx.line_of(k.span().start)),
+                    format!(
+                        "{}: unknown key `{name}` (this step reads: {})",
+                        self.label,
+                        known.join(", ")
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
+}
+
+fn number(v: &DeValue<'_>) -> Result<f64, String> {
+    let parsed = match v {
+        DeValue::Integer(i) => {
+            let s = i.as_str().replace('_', "");
+            i64::from_str_radix(
+                s.trim_start_matches("0x")
+                    .trim_start_matches("0o")
+                    .trim_start_matches("0b"),
+                i.radix(),
+            )
+            .map(|n| n as f64)
+            .map_err(|e| format!("`{}` is not an integer: {e}", i.as_str()))?
+        }
+        DeValue::Float(f) => f
+            .as_str()
+            .replace('_', "")
+            .parse::<f64>()
+            .map_err(|e| format!("`{}` is not a number: {e}", f.as_str()))?,
+        other => return Err(format!("expected a number, found a {}", other.type_str())),
+    };
+    if parsed.is_finite() {
+        Ok(parsed)
+    } else {
+        Err(format!("{parsed} is not a finite number"))
+    }
+}
+
+fn parse_draw(v: &DeValue<'_>) -> Result<Draw, String> {
+    match v {
+        DeValue::Integer(_) | DeValue::Float(_) => Ok(Draw::Fixed(number(v)?)),
+        DeValue::Array(items) => {
+            let values = items
+                .iter()
+                .enumerate()
+                .map(|(i, x)| number(x.get_ref()).map_err(|m| format!("list item {}: {m}", i + 1)))
+                .collect::<Result<Vec<f64>, String>>()?;
+            if values.is_empty() {
+                return Err("an empty list has nothing to pick from".into());
+            }
+            Ok(Draw::Pick(values))
+        }
+        DeValue::Table(t) => {
+            let mut low = None;
+            let mut high = None;
+            for (k, x) in t.iter() {
+                match k.get_ref().as_ref() {
+                    "low" => low = Some(number(x.get_ref()).map_err(|m| format!("low: {m}"))?),
+                    "high" => high = Some(number(x.get_ref()).map_err(|m| format!("high: {m}"))?),
+                    other => {
+                        return Err(format!(
+                            "unknown key `{other}` in a range (use low and high)"
+                        ));
+                    }
+                }
+            }
+            match (low, high) {
+                (Some(low), Some(high)) if low <= high => Ok(Draw::Uniform { low, high }),
+                (Some(low), Some(high)) => Err(format!("range low {low} is above high {high}")),
+                _ => Err("a range needs both low and high".into()),
+            }
+        }
+        other => Err(format!(
+            "expected a number, a list of numbers or {{ low, high }}, found a {}",
+            other.type_str()
+        )),
+    }
+}
+
+const TOP_KEYS: &[&str] = &[
+    "seed",
+    "takes",
+    "keep_source",
+    "rate",
+    "format",
+    "channels",
+    "step",
+];
+
+/// Read and check a recipe file.
+///
+/// # Errors
+/// An unreadable file, TOML syntax, an unknown key, a missing or impossible value: the
+/// first problem found, with its line.
+pub fn load(path: &Path) -> Result<Plan, RecipeError> {
+    let text = std::fs::read_to_string(path).map_err(|e| RecipeError {
+        path: path.to_path_buf(),
+        line: None,
+        message: format!("cannot read: {e}"),
+    })?;
+    parse(path, &text)
+}
+
+/// Check a recipe given as text; `path` is only used in messages.
+///
+/// # Errors
+/// As [`load`].
+pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
+    let ctx = Ctx { path, text };
+    let doc = DeTable::parse(text).map_err(|e| {
+        let line = e.span().map(|s| ctx.line_of(s.start));
+        ctx.err(line, e.message().to_string())
+    })?;
+    let doc = doc.get_ref();
+    let at = |key: &str| -> Option<(usize, &Spanned<DeValue<'_>>)> {
+        doc.iter()
+            .find(|(k, _)| k.get_ref() == key)
+            .map(|(k, v)| (ctx.line_of(k.span().start), v))
+    };
+    for (k, _) in doc.iter() {
+        if !TOP_KEYS.contains(&k.get_ref().as_ref()) {
+            return Err(ctx.err(
+                Some(ctx.line_of(k.span().start)),
+                format!(
+                    "unknown key `{}` (a recipe reads: {})",
+                    k.get_ref(),
+                    TOP_KEYS.join(", ")
+                ),
+            ));
+        }
+    }
+    let whole = |key: &str, default: Option<u64>, min: u64, max: u64| -> Result<u64, RecipeError> {
+        match at(key) {
+            None => default.ok_or_else(|| ctx.err(None, format!("{key}: missing"))),
+            Some((line, v)) => {
+                let n =
+                    number(v.get_ref()).map_err(|m| ctx.err(Some(line), format!("{key}: {m}")))?;
+                if n.fract() != 0.0 || n < min as f64 || n > max as f64 {
+                    return Err(ctx.err(
+                        Some(line),
+                        format!("{key}: {n} is not a whole number in {min}..={max}"),
+                    ));
+                }
+                Ok(n as u64)
+            }
+        }
+    };
+    let seed = whole("seed", Some(0), 0, i64::MAX as u64)?;
+    let takes = whole("takes", None, 1, 10_000)? as u32;
+    let rate = whole("rate", Some(16_000), 1_000, 384_000)? as u32;
+    let keep_source = match at("keep_source") {
+        None => false,
+        Some((line, v)) => v
+            .get_ref()
+            .as_bool()
+            .ok_or_else(|| ctx.err(Some(line), "keep_source: expected true or false".into()))?,
+    };
+    let format = match at("format") {
+        None => SampleFormat::default(),
+        Some((line, v)) => match v.get_ref().as_str() {
+            Some("pcm16") => SampleFormat::Pcm16,
+            Some("float32") => SampleFormat::Float32,
+            _ => {
+                return Err(ctx.err(
+                    Some(line),
+                    "format: expected \"pcm16\" or \"float32\"".into(),
+                ));
+            }
+        },
+    };
+    let channels = match at("channels") {
+        None => ChannelPolicy::default(),
+        Some((line, v)) => match v.get_ref() {
+            DeValue::String(s) if s == "mix" => ChannelPolicy::Mix,
+            DeValue::Integer(_) => {
+                let n = number(v.get_ref())
+                    .map_err(|m| ctx.err(Some(line), format!("channels: {m}")))?;
+                if n < 0.0 {
+                    return Err(ctx.err(Some(line), format!("channels: channel {n} is negative")));
+                }
+                ChannelPolicy::Pick(n as usize)
+            }
+            _ => {
+                return Err(ctx.err(
+                    Some(line),
+                    "channels: expected \"mix\" or a channel number counted from 0".into(),
+                ));
+            }
+        },
+    };
+    let mut planned = Vec::new();
+    if let Some((line, v)) = at("step") {
+        let Some(items) = v.get_ref().as_array() else {
+            return Err(ctx.err(Some(line), "step: expected [[step]] tables".into()));
+        };
+        for (i, item) in items.iter().enumerate() {
+            let item_line = ctx.line_of(item.span().start);
+            let Some(table) = item.get_ref().as_table() else {
+                return Err(ctx.err(Some(item_line), format!("step {}: expected a table", i + 1)));
+            };
+            let kind = table
+                .iter()
+                .find(|(k, _)| k.get_ref() == "do")
+                .map(|(_, v)| v);
+            let Some(kind) = kind else {
+                return Err(ctx.err(
+                    Some(item_line),
+                    format!(
+                        "step {}: missing `do` (one of: {})",
+                        i + 1,
+                        steps::names().join(", ")
+                    ),
+                ));
+            };
+            let kind_line = ctx.line_of(kind.span().start);
+            let Some(name) = kind.get_ref().as_str() else {
+                return Err(ctx.err(
+                    Some(kind_line),
+                    format!("step {}: do: expected a step name", i + 1),
+                ));
+            };
+            let Some(parser) = steps::parser(name) else {
+                return Err(ctx.err(
+                    Some(kind_line),
+                    format!(
+                        "step {}: do: unknown step `{name}` (one of: {})",
+                        i + 1,
+                        steps::names().join(", ")
+                    ),
+                ));
+            };
+            let mut params = Params {
+                ctx: &ctx,
+                label: format!("step {} ({name})", i + 1),
+                table,
+                table_line: item_line,
+                taken: BTreeSet::new(),
+            };
+            let chance = match params.find("chance") {
+                None => 1.0,
+                Some(_) => {
+                    let c = params.number("chance", 1.0)?;
+                    if !(0.0..=1.0).contains(&c) {
+                        return Err(params.error("chance", format!("{c} is not in [0, 1]")));
+                    }
+                    c
+                }
+            };
+            let step = parser(&mut params, &steps::PlanContext { rate })?;
+            params.finish()?;
+            planned.push(PlannedStep { step, chance });
+        }
+    }
+    Ok(Plan {
+        seed,
+        takes,
+        keep_source,
+        rate,
+        format,
+        channels,
+        steps: planned,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn parse_str(text: &str) -> Result<Plan, RecipeError> {
+        parse(Path::new("r.toml"), text)
+    }
+
+    #[test]
+    fn draws_of_each_shape() {
+        let v = DeValue::parse("[0.9, 1, 1.1]").unwrap();
+        assert_eq!(parse_draw(v.get_ref()), Ok(Draw::Pick(vec![0.9, 1.0, 1.1])));
+        let v = DeValue::parse("{ low = -3, high = 2.5 }").unwrap();
+        assert_eq!(
+            parse_draw(v.get_ref()),
+            Ok(Draw::Uniform {
+                low: -3.0,
+                high: 2.5
+            })
+        );
+        let v = DeValue::parse("1_000").unwrap();
+        assert_eq!(parse_draw(v.get_ref()), Ok(Draw::Fixed(1000.0)));
+        let v = DeValue::parse("{ low = 3, high = 2 }").unwrap();
+        assert!(
+            parse_draw(v.get_ref())
+                .unwrap_err()
+                .contains("low 3 is above high 2")
+        );
+        let v = DeValue::parse("\"fast\"").unwrap();
+        assert!(parse_draw(v.get_ref()).is_err());
+        let v = DeValue::parse("nan").unwrap();
+        assert!(parse_draw(v.get_ref()).is_err());
+    }
+
+    #[test]
+    fn unknown_top_key_names_its_line() {
+        let e = parse_str("takes = 2\n\nsed = 4\n").unwrap_err();
+        assert_eq!(e.line, Some(3));
+        assert!(e.message.contains("unknown key `sed`"), "{}", e.message);
+    }
+
+    #[test]
+    fn missing_takes_is_an_error() {
+        let e = parse_str("seed = 1\n").unwrap_err();
+        assert!(e.message.contains("takes: missing"), "{}", e.message);
+    }
+
+    #[test]
+    fn syntax_error_has_a_line() {
+        let e = parse_str("takes = 2\nrate = = 3\n").unwrap_err();
+        assert_eq!(e.line, Some(2), "{e}");
+    }
+}

@@ -1,0 +1,81 @@
+//! Steps: one file per operation behind the [`Step`] trait, found by name in [`REGISTRY`].
+//!
+//! A step takes the take's audio and its own seeded stream, and returns the new audio, the
+//! [`TimeMap`] it applied and the values it drew and measured. Steps never touch labels:
+//! the runner composes the maps and rewrites every timing once.
+//!
+//! To add a step: write `src/steps/<name>.rs` with a struct implementing [`Step`] and a
+//! `parse` function reading its keys from [`Params`], then add one row to [`REGISTRY`].
+
+use serde_json::{Map, Value};
+
+use crate::audio::Audio;
+use crate::recipe::{Params, RecipeError};
+use crate::seed::TakeRng;
+use crate::timemap::TimeMap;
+
+pub mod gain;
+pub mod resample;
+pub mod speed;
+
+/// What a step did to one take.
+#[derive(Debug, Clone)]
+pub struct StepOutput {
+    /// The new audio.
+    pub audio: Audio,
+    /// Source-to-output time map of this step alone (domain: the input's duration).
+    pub map: TimeMap,
+    /// Values drawn for this take, by parameter name.
+    pub drawn: Map<String, Value>,
+    /// Values measured on the result (what was actually achieved), by name.
+    pub measured: Map<String, Value>,
+}
+
+/// A step could not process a take; the clip goes to the rejects with this reason.
+#[derive(Debug, Clone, thiserror::Error)]
+#[error("{step}: {reason}")]
+pub struct StepError {
+    /// Step name.
+    pub step: &'static str,
+    /// What went wrong.
+    pub reason: String,
+}
+
+/// Facts about the run that step parsers may need to check their parameters.
+#[derive(Debug, Clone, Copy)]
+pub struct PlanContext {
+    /// The output sample rate in Hz; every step receives and returns audio at this rate.
+    pub rate: u32,
+}
+
+/// One operation of a recipe.
+pub trait Step: Send + Sync + std::fmt::Debug {
+    /// The name used in recipes (`do = "..."`) and in take records.
+    fn name(&self) -> &'static str;
+
+    /// Process one take. `audio` is at the plan's rate and so must the result be.
+    ///
+    /// # Errors
+    /// When the take cannot be processed; the clip is rejected with the reason.
+    fn apply(&self, audio: Audio, rng: &mut TakeRng) -> Result<StepOutput, StepError>;
+}
+
+/// Reads a step's keys from its `[[step]]` table.
+pub type ParseFn = fn(&mut Params<'_>, &PlanContext) -> Result<Box<dyn Step>, RecipeError>;
+
+/// Every step a recipe can name, with its parser.
+pub const REGISTRY: &[(&str, ParseFn)] = &[
+    ("speed", speed::parse),
+    ("resample", resample::parse),
+    ("gain", gain::parse),
+];
+
+/// The parser for a step name.
+pub fn parser(name: &str) -> Option<ParseFn> {
+    REGISTRY.iter().find(|(n, _)| *n == name).map(|(_, p)| *p)
+}
+
+/// All step names, in registry order.
+pub fn names() -> Vec<&'static str> {
+    REGISTRY.iter().map(|(n, _)| *n).collect()
+}

@@ -1,0 +1,1 @@
+//! The clip / line / word model (to be written).
