@@ -1,0 +1,70 @@
+//! Shared helpers for integration tests: the reference Python (numpy, scipy, soundfile from
+//! PyPI, pinned in `tests/reference/requirements.txt`) and signal exchange with it.
+#![allow(dead_code)]
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+/// The repository root.
+pub fn root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+/// The Python interpreter of the reference venv: `$RETAKE_PYTHON`, else `.venv/bin/python`.
+///
+/// # Panics
+/// When neither exists: reference checks must not be skipped silently.
+pub fn python() -> PathBuf {
+    if let Ok(p) = std::env::var("RETAKE_PYTHON") {
+        return PathBuf::from(p);
+    }
+    let venv = root().join(".venv/bin/python");
+    assert!(
+        venv.exists(),
+        "reference checks need the Python venv: run `dev/test` (it creates .venv), or set \
+         RETAKE_PYTHON to a python with tests/reference/requirements.txt installed"
+    );
+    venv
+}
+
+/// Run `code` with the reference Python and the given arguments; return its stdout.
+///
+/// # Panics
+/// When Python fails; its stderr is shown.
+pub fn run_python(code: &str, args: &[&str]) -> String {
+    let out = Command::new(python())
+        .arg("-c")
+        .arg(code)
+        .args(args)
+        .output()
+        .expect("start the reference python");
+    assert!(
+        out.status.success(),
+        "reference python failed:\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    String::from_utf8(out.stdout).expect("utf-8 from python")
+}
+
+/// Write samples as little-endian f64 (numpy: `np.fromfile(path, '<f8')`).
+pub fn write_f64(path: &Path, x: &[f64]) {
+    let bytes: Vec<u8> = x.iter().flat_map(|v| v.to_le_bytes()).collect();
+    std::fs::write(path, bytes).expect("write f64 file");
+}
+
+/// Read little-endian f64 samples (numpy: `arr.astype('<f8').tofile(path)`).
+pub fn read_f64(path: &Path) -> Vec<f64> {
+    let bytes = std::fs::read(path).expect("read f64 file");
+    bytes
+        .chunks_exact(8)
+        .map(|c| f64::from_le_bytes(c.try_into().expect("8 bytes")))
+        .collect()
+}
+
+/// A sine of `freq` Hz, `secs` long, amplitude `amp`, at `rate` Hz.
+pub fn sine(freq: f64, secs: f64, rate: u32, amp: f64) -> Vec<f32> {
+    let n = (secs * f64::from(rate)).round() as usize;
+    (0..n)
+        .map(|i| (amp * (2.0 * std::f64::consts::PI * freq * i as f64 / f64::from(rate)).sin()) as f32)
+        .collect()
+}
