@@ -1,1 +1,412 @@
-//! The batch engine (to be written).
+//! The batch engine: clips in, takes out, labels rewritten, nothing half-written.
+//!
+//! Clips are processed in parallel (rayon); each take is fixed by its seed alone, so the
+//! output is byte-identical whatever the thread count. Audio is written under a temporary
+//! name and renamed; a clip that fails has its finished takes removed and goes to
+//! `rejects.jsonl` with the reason, and the run goes on. The manifest and rejects are
+//! written in input order at the end, also by rename.
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+use rayon::prelude::*;
+use serde::Serialize;
+
+use crate::audio::{self, Audio};
+use crate::dsp::resample::resample;
+use crate::recipe::Plan;
+use crate::seed::{TakeRng, step_seed, take_seed};
+use crate::timemap::TimeMap;
+use crate::transcript::{
+    self, Clip, Entry, Manifest, Origin, Problem, StepRecord, read_manifest, remap_lines, validate,
+    write_manifest,
+};
+
+/// Name of the output manifest inside the output folder.
+pub const MANIFEST_NAME: &str = "manifest.jsonl";
+/// Name of the rejects file inside the output folder.
+pub const REJECTS_NAME: &str = "rejects.jsonl";
+/// Folder for take audio inside the output folder.
+pub const TAKES_DIR: &str = "takes";
+
+/// What the engine tells its caller while it works (the caller decides how to show it).
+#[derive(Debug, Clone, Copy)]
+pub enum Event {
+    /// Work is about to start on this many clips.
+    Started {
+        /// Clips that will be processed.
+        clips: usize,
+    },
+    /// One clip is finished (written or rejected).
+    ClipDone {
+        /// Whether it was written.
+        ok: bool,
+    },
+}
+
+/// Figures for the closing summary.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Summary {
+    /// Manifest lines read.
+    pub clips_in: usize,
+    /// Clips whose takes were all written.
+    pub clips_done: usize,
+    /// Clips (and unreadable lines) in `rejects.jsonl`.
+    pub rejected: usize,
+    /// Takes written.
+    pub takes: usize,
+    /// Seconds of source audio in the clips done.
+    pub seconds_in: f64,
+    /// Seconds of take audio written.
+    pub seconds_out: f64,
+    /// Wall-clock seconds of the run.
+    pub wall_seconds: f64,
+}
+
+/// A failure that stops the whole run (per-clip failures never do).
+#[derive(Debug, thiserror::Error)]
+pub enum RunError {
+    /// The input manifest cannot be read at all.
+    #[error("{path}: cannot read manifest: {source}")]
+    Manifest {
+        /// The manifest.
+        path: PathBuf,
+        /// Why.
+        source: std::io::Error,
+    },
+    /// The output folder or a file in it cannot be written.
+    #[error("{path}: cannot write: {source}")]
+    Output {
+        /// The file or folder.
+        path: PathBuf,
+        /// Why.
+        source: std::io::Error,
+    },
+    /// The thread pool could not be built.
+    #[error("cannot start {threads} threads: {reason}")]
+    Threads {
+        /// Threads asked for.
+        threads: usize,
+        /// Why.
+        reason: String,
+    },
+}
+
+/// Where a run reads and writes.
+#[derive(Debug, Clone)]
+pub struct RunSpec<'a> {
+    /// The checked recipe.
+    pub plan: &'a Plan,
+    /// Input manifest.
+    pub input: &'a Path,
+    /// Output folder (created if needed).
+    pub out: &'a Path,
+    /// Worker threads; `None` for one per core.
+    pub threads: Option<usize>,
+}
+
+/// One line of `rejects.jsonl`.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct Reject {
+    /// Line of the input manifest.
+    pub line: usize,
+    /// Clip id, when the line got that far.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub id: Option<String>,
+    /// The field at fault, when one is.
+    #[serde(skip_serializing_if = "String::is_empty")]
+    pub field: String,
+    /// What went wrong.
+    pub reason: String,
+}
+
+impl From<Problem> for Reject {
+    fn from(p: Problem) -> Self {
+        Reject {
+            line: p.line,
+            id: None,
+            field: p.field,
+            reason: p.message,
+        }
+    }
+}
+
+/// Run a plan over a manifest.
+///
+/// # Errors
+/// Only run-wide failures; a bad clip is a reject, not an error.
+pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summary, RunError> {
+    let started = Instant::now();
+    let manifest = read_manifest(spec.input).map_err(|source| RunError::Manifest {
+        path: spec.input.to_path_buf(),
+        source,
+    })?;
+    let takes_dir = spec.out.join(TAKES_DIR);
+    std::fs::create_dir_all(&takes_dir).map_err(|source| RunError::Output {
+        path: takes_dir.clone(),
+        source,
+    })?;
+    let threads = spec.threads.unwrap_or(0);
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .map_err(|e| RunError::Threads {
+            threads,
+            reason: e.to_string(),
+        })?;
+    on_event(Event::Started {
+        clips: manifest.entries.len(),
+    });
+    let results: Vec<Result<ClipResult, Reject>> = pool.install(|| {
+        manifest
+            .entries
+            .par_iter()
+            .map(|entry| {
+                let r = process_clip(spec.plan, &manifest, entry, spec.out);
+                on_event(Event::ClipDone { ok: r.is_ok() });
+                r
+            })
+            .collect()
+    });
+
+    let mut summary = Summary {
+        clips_in: manifest.entries.len() + manifest.problems.len(),
+        ..Summary::default()
+    };
+    let mut takes = Vec::new();
+    let mut rejects: Vec<Reject> = manifest
+        .problems
+        .iter()
+        .cloned()
+        .map(Reject::from)
+        .collect();
+    for result in results {
+        match result {
+            Ok(done) => {
+                summary.clips_done += 1;
+                summary.seconds_in += done.seconds_in;
+                summary.takes += done.takes.len();
+                summary.seconds_out += done.takes.iter().filter_map(|c| c.duration).sum::<f64>();
+                takes.extend(done.takes);
+            }
+            Err(reject) => rejects.push(reject),
+        }
+    }
+    rejects.sort_by_key(|r| r.line);
+    summary.rejected = rejects.len();
+    write_atomically(&spec.out.join(MANIFEST_NAME), |w| write_manifest(w, &takes))?;
+    write_atomically(&spec.out.join(REJECTS_NAME), |w| {
+        for r in &rejects {
+            serde_json::to_writer(&mut *w, r)?;
+            w.write_all(b"\n")?;
+        }
+        Ok(())
+    })?;
+    summary.wall_seconds = started.elapsed().as_secs_f64();
+    Ok(summary)
+}
+
+struct ClipResult {
+    seconds_in: f64,
+    takes: Vec<Clip>,
+}
+
+fn process_clip(
+    plan: &Plan,
+    manifest: &Manifest,
+    entry: &Entry,
+    out: &Path,
+) -> Result<ClipResult, Reject> {
+    let clip = &entry.clip;
+    let reject = |field: &str, reason: String| Reject {
+        line: entry.line,
+        id: Some(clip.id.clone()),
+        field: field.to_string(),
+        reason,
+    };
+    if let Some((field, reason)) = validate(clip, None).into_iter().next() {
+        return Err(reject(&field, reason));
+    }
+    let path = manifest.base().join(&clip.audio);
+    let source = audio::decode(&path, plan.channels).map_err(|e| reject("audio", e.to_string()))?;
+    if source.samples.is_empty() {
+        return Err(reject("audio", format!("{}: no samples", path.display())));
+    }
+    if let Some((field, reason)) = validate(clip, Some(source.duration())).into_iter().next() {
+        return Err(reject(&field, reason));
+    }
+    let seconds_in = source.duration();
+    let source_rate = source.rate;
+    let base = if source.rate == plan.rate {
+        source
+    } else {
+        Audio {
+            rate: plan.rate,
+            samples: resample(&source.samples, source.rate, plan.rate),
+        }
+    };
+
+    let stem = file_stem(&clip.id);
+    let mut written: Vec<PathBuf> = Vec::new();
+    let mut takes = Vec::with_capacity(plan.takes as usize);
+    let outcome = (0..plan.takes).try_for_each(|k| {
+        let rel = format!("{TAKES_DIR}/{stem}.t{k}.wav");
+        let take = make_take(plan, clip, &base, k, source_rate)
+            .map_err(|(field, reason)| reject(&field, reason))?;
+        let dest = out.join(&rel);
+        let tmp = out.join(format!("{rel}.part"));
+        audio::write_wav(&tmp, &take.audio, plan.format).map_err(|e| {
+            let _ = std::fs::remove_file(&tmp);
+            reject("", e.to_string())
+        })?;
+        std::fs::rename(&tmp, &dest).map_err(|e| reject("", format!("{}: {e}", dest.display())))?;
+        written.push(dest);
+        takes.push(Clip {
+            id: format!("{}.t{k}", clip.id),
+            audio: rel,
+            duration: Some(take.audio.duration()),
+            ..take.clip
+        });
+        Ok(())
+    });
+    if let Err(r) = outcome {
+        for f in written {
+            let _ = std::fs::remove_file(f);
+        }
+        return Err(r);
+    }
+    Ok(ClipResult { seconds_in, takes })
+}
+
+struct Take {
+    audio: Audio,
+    clip: Clip,
+}
+
+/// One take: run the steps with their own streams, compose the maps, rewrite the labels.
+fn make_take(
+    plan: &Plan,
+    clip: &Clip,
+    base: &Audio,
+    k: u32,
+    source_rate: u32,
+) -> Result<Take, (String, String)> {
+    let seed = take_seed(plan.seed, &clip.id, k);
+    let mut audio = base.clone();
+    let mut map = TimeMap::identity(base.duration());
+    let mut records = Vec::with_capacity(plan.steps.len());
+    let untouched = plan.keep_source && k == 0;
+    for (i, planned) in plan.steps.iter().enumerate() {
+        let mut rng = TakeRng::new(step_seed(seed, i));
+        let mut record = StepRecord {
+            step: planned.step.name().to_string(),
+            ran: false,
+            drawn: Default::default(),
+            measured: Default::default(),
+        };
+        if !untouched && rng.chance(planned.chance) {
+            let done = planned
+                .step
+                .apply(audio, &mut rng)
+                .map_err(|e| (format!("step {} ({})", i + 1, e.step), e.reason))?;
+            audio = done.audio;
+            map = map.then(&done.map);
+            record.ran = true;
+            record.drawn = done.drawn;
+            record.measured = done.measured;
+        }
+        records.push(record);
+    }
+    if let Some(i) = audio.samples.iter().position(|s| !s.is_finite()) {
+        return Err((
+            String::new(),
+            format!("take {k}: sample {i} is not finite after the steps"),
+        ));
+    }
+    let duration = audio.duration();
+    let lines = clip
+        .lines
+        .as_ref()
+        .map(|lines| remap_lines(lines, &map, duration));
+    let mut out = Clip {
+        lines,
+        origin: Some(Origin {
+            source: clip.id.clone(),
+            take: k,
+            seed,
+            source_rate,
+            steps: records,
+            time_map: map,
+        }),
+        ..clip.clone()
+    };
+    out.duration = Some(duration);
+    if let Some((field, reason)) = transcript::validate(&out, Some(duration))
+        .into_iter()
+        .next()
+    {
+        return Err((
+            field,
+            format!("take {k}: rewritten label is invalid: {reason}"),
+        ));
+    }
+    Ok(Take { audio, clip: out })
+}
+
+/// A file name for a clip id: the id itself when it is plain, else a cleaned id plus a
+/// short hash of the original so two ids never share a file.
+fn file_stem(id: &str) -> String {
+    let clean: String = id
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '-' || c == '_' || c == '.' {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect();
+    if clean == id && !id.starts_with('.') {
+        clean
+    } else {
+        format!(
+            "{}-{:08x}",
+            clean.trim_start_matches('.'),
+            take_seed(0, id, 0) as u32
+        )
+    }
+}
+
+/// Write a file under a temporary name, then rename it into place.
+fn write_atomically(
+    path: &Path,
+    fill: impl FnOnce(&mut std::io::BufWriter<std::fs::File>) -> std::io::Result<()>,
+) -> Result<(), RunError> {
+    let err = |source| RunError::Output {
+        path: path.to_path_buf(),
+        source,
+    };
+    let tmp = path.with_extension("jsonl.part");
+    let file = std::fs::File::create(&tmp).map_err(err)?;
+    let mut w = std::io::BufWriter::new(file);
+    fill(&mut w).map_err(err)?;
+    w.flush().map_err(err)?;
+    drop(w);
+    std::fs::rename(&tmp, path).map_err(err)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn stems_are_safe_and_distinct() {
+        assert_eq!(file_stem("dock-01"), "dock-01");
+        let a = file_stem("north/dock 1");
+        let b = file_stem("north_dock_1");
+        assert!(a.starts_with("north_dock_1-"), "{a}");
+        assert_ne!(a, b);
+        assert!(!file_stem("../x").contains('/'));
+    }
+}

@@ -1,1 +1,441 @@
-//! The clip / line / word model (to be written).
+//! The clip / line / word model, the JSON Lines manifest, and label validation.
+//!
+//! One manifest line is one [`Clip`]. Input and output share the schema, so a run's output
+//! can be the input of another; takes carry an [`Origin`]. Unknown fields are kept and
+//! written back unchanged.
+
+use std::io::{BufRead, Write};
+use std::path::{Path, PathBuf};
+
+use serde::{Deserialize, Serialize};
+use serde_json::{Map, Value};
+
+use crate::timemap::TimeMap;
+
+/// Timings may lie past the audio's end by this much (seconds) before it is a problem: a
+/// tenth of a millisecond, below one sample at 8 kHz, absorbs rounding in hand-made labels.
+pub const END_TOLERANCE_S: f64 = 1e-4;
+
+/// A timed token inside a line.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Word {
+    /// Start, seconds from the start of the audio.
+    pub start: f64,
+    /// End, seconds.
+    pub end: f64,
+    /// The token.
+    pub text: String,
+    /// Fields this version does not know, carried through.
+    #[serde(flatten)]
+    pub extra: Map<String, Value>,
+}
+
+/// A timed stretch of speech.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Line {
+    /// Start, seconds.
+    pub start: f64,
+    /// End, seconds.
+    pub end: f64,
+    /// What was said.
+    pub text: String,
+    /// Who said it, when known.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub speaker: Option<String>,
+    /// Word timings, when known, in order.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub words: Vec<Word>,
+    /// Fields this version does not know, carried through.
+    #[serde(flatten)]
+    pub extra: Map<String, Value>,
+}
+
+/// What one step did to one take, as written in the manifest.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct StepRecord {
+    /// Step name as in the recipe.
+    pub step: String,
+    /// False when the step's chance said no for this take.
+    pub ran: bool,
+    /// Values drawn for this take.
+    #[serde(default, skip_serializing_if = "Map::is_empty")]
+    pub drawn: Map<String, Value>,
+    /// Values measured on the result.
+    #[serde(default, skip_serializing_if = "Map::is_empty")]
+    pub measured: Map<String, Value>,
+}
+
+/// Where a take came from: enough to explain and reproduce it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Origin {
+    /// Id of the source clip.
+    pub source: String,
+    /// Take index, from 0.
+    pub take: u32,
+    /// The take's seed (a stable hash of recipe seed, clip id and take index).
+    pub seed: u64,
+    /// Sample rate of the source file before it was brought to the recipe's rate.
+    pub source_rate: u32,
+    /// Every step of the recipe in order, with what it drew and measured.
+    pub steps: Vec<StepRecord>,
+    /// Source time to take time, all steps composed: `[[source_s, take_s], ...]`.
+    pub time_map: TimeMap,
+}
+
+/// One recording and its transcript: one manifest line.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Clip {
+    /// Unique id.
+    pub id: String,
+    /// Audio path, relative to the manifest's folder (or absolute).
+    pub audio: String,
+    /// Timed transcript.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub lines: Option<Vec<Line>>,
+    /// Untimed transcript, for clips without `lines`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub text: Option<String>,
+    /// Audio length in seconds (written on takes; optional on input).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub duration: Option<f64>,
+    /// How a take was made; absent on source clips.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub origin: Option<Origin>,
+    /// Fields this version does not know, carried through.
+    #[serde(flatten)]
+    pub extra: Map<String, Value>,
+}
+
+/// One thing wrong with one manifest line.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Problem {
+    /// The manifest file.
+    pub manifest: PathBuf,
+    /// 1-based line number in the manifest.
+    pub line: usize,
+    /// The field, as a path (`lines[0].words[2].end`), or empty for the whole line.
+    pub field: String,
+    /// What is wrong.
+    pub message: String,
+}
+
+impl std::fmt::Display for Problem {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{} line {}: ", self.manifest.display(), self.line)?;
+        if !self.field.is_empty() {
+            write!(f, "{}: ", self.field)?;
+        }
+        f.write_str(&self.message)
+    }
+}
+
+impl std::error::Error for Problem {}
+
+/// A manifest line that parsed, with its position.
+#[derive(Debug, Clone)]
+pub struct Entry {
+    /// 1-based line number.
+    pub line: usize,
+    /// The clip.
+    pub clip: Clip,
+}
+
+/// A manifest read line by line: good entries and the problems of the bad lines.
+#[derive(Debug, Default)]
+pub struct Manifest {
+    /// The file read.
+    pub path: PathBuf,
+    /// Lines that parsed, in file order.
+    pub entries: Vec<Entry>,
+    /// Lines that did not, one problem each.
+    pub problems: Vec<Problem>,
+}
+
+impl Manifest {
+    /// The folder audio paths are relative to.
+    pub fn base(&self) -> &Path {
+        self.path.parent().unwrap_or(Path::new("."))
+    }
+}
+
+/// Read a JSON Lines manifest. A bad line (empty, not JSON, wrong field type, duplicate id)
+/// becomes a [`Problem`] and reading goes on.
+///
+/// # Errors
+/// Only when the file itself cannot be opened or read.
+pub fn read_manifest(path: &Path) -> std::io::Result<Manifest> {
+    let file = std::fs::File::open(path)?;
+    let mut manifest = Manifest {
+        path: path.to_path_buf(),
+        ..Manifest::default()
+    };
+    let mut seen = std::collections::HashMap::new();
+    for (i, text) in std::io::BufReader::new(file).lines().enumerate() {
+        let line = i + 1;
+        let text = text?;
+        match parse_clip(&text) {
+            Ok(clip) => {
+                if let Some(first) = seen.insert(clip.id.clone(), line) {
+                    manifest.problems.push(Problem {
+                        manifest: path.to_path_buf(),
+                        line,
+                        field: "id".into(),
+                        message: format!("`{}` already used on line {first}", clip.id),
+                    });
+                } else {
+                    manifest.entries.push(Entry { line, clip });
+                }
+            }
+            Err((field, message)) => manifest.problems.push(Problem {
+                manifest: path.to_path_buf(),
+                line,
+                field,
+                message,
+            }),
+        }
+    }
+    Ok(manifest)
+}
+
+/// Parse one manifest line into a clip, or (field path, message).
+pub fn parse_clip(text: &str) -> Result<Clip, (String, String)> {
+    if text.trim().is_empty() {
+        return Err((
+            String::new(),
+            "empty line (one clip per line, no blank lines)".into(),
+        ));
+    }
+    let mut de = serde_json::Deserializer::from_str(text);
+    let clip: Clip = serde_path_to_error::deserialize(&mut de).map_err(|e| {
+        let field = e.path().to_string();
+        let field = if field == "." { String::new() } else { field };
+        (field, strip_position(&e.into_inner().to_string()))
+    })?;
+    de.end()
+        .map_err(|e| (String::new(), strip_position(&e.to_string())))?;
+    Ok(clip)
+}
+
+/// serde_json appends "at line 1 column 57"; the manifest line is already named.
+fn strip_position(message: &str) -> String {
+    match message.rfind(" at line ") {
+        Some(i) => message[..i].to_string(),
+        None => message.to_string(),
+    }
+}
+
+/// Write clips as JSON Lines.
+///
+/// # Errors
+/// A failing writer.
+pub fn write_manifest<'a, W: Write>(
+    mut out: W,
+    clips: impl IntoIterator<Item = &'a Clip>,
+) -> std::io::Result<()> {
+    for clip in clips {
+        serde_json::to_writer(&mut out, clip)?;
+        out.write_all(b"\n")?;
+    }
+    out.flush()
+}
+
+/// Check a clip's labels; `duration` is the audio's length when known.
+/// Returns (field path, message) for every problem found.
+pub fn validate(clip: &Clip, duration: Option<f64>) -> Vec<(String, String)> {
+    let mut out = Vec::new();
+    if clip.id.trim().is_empty() {
+        out.push(("id".into(), "empty".into()));
+    }
+    if clip.audio.trim().is_empty() {
+        out.push(("audio".into(), "empty".into()));
+    }
+    let Some(lines) = &clip.lines else {
+        if clip.text.is_none() {
+            out.push((
+                String::new(),
+                "needs `lines` (timed) or `text` (untimed)".into(),
+            ));
+        }
+        return out;
+    };
+    for (li, line) in lines.iter().enumerate() {
+        let at = format!("lines[{li}]");
+        check_span(&mut out, &at, line.start, line.end, duration);
+        if li > 0 && line.start < lines[li - 1].start {
+            out.push((
+                format!("{at}.start"),
+                format!(
+                    "{} s is before the previous line's start {} s (lines must be in order)",
+                    line.start,
+                    lines[li - 1].start
+                ),
+            ));
+        }
+        for (wi, word) in line.words.iter().enumerate() {
+            let wat = format!("{at}.words[{wi}]");
+            check_span(&mut out, &wat, word.start, word.end, duration);
+            if word.start < line.start - END_TOLERANCE_S || word.end > line.end + END_TOLERANCE_S {
+                out.push((
+                    wat.clone(),
+                    format!(
+                        "word {}..{} s lies outside its line {}..{} s",
+                        word.start, word.end, line.start, line.end
+                    ),
+                ));
+            }
+            if wi > 0 {
+                let prev = &line.words[wi - 1];
+                if word.start < prev.start {
+                    out.push((format!("{wat}.start"), format!("{} s is before the previous word's start {} s (words must be in order)", word.start, prev.start)));
+                } else if word.start < prev.end - END_TOLERANCE_S {
+                    out.push((
+                        format!("{wat}.start"),
+                        format!(
+                            "{} s overlaps the previous word, which ends at {} s",
+                            word.start, prev.end
+                        ),
+                    ));
+                }
+            }
+        }
+    }
+    out
+}
+
+fn check_span(
+    out: &mut Vec<(String, String)>,
+    at: &str,
+    start: f64,
+    end: f64,
+    duration: Option<f64>,
+) {
+    for (name, t) in [("start", start), ("end", end)] {
+        if !t.is_finite() {
+            out.push((format!("{at}.{name}"), format!("{t} is not a finite time")));
+        } else if t < 0.0 {
+            out.push((format!("{at}.{name}"), format!("{t} s is negative")));
+        } else if let Some(d) = duration {
+            if t > d + END_TOLERANCE_S {
+                out.push((
+                    format!("{at}.{name}"),
+                    format!("{t} s is past the end of the audio ({d:.4} s)"),
+                ));
+            }
+        }
+    }
+    if start.is_finite() && end.is_finite() && end < start {
+        out.push((
+            format!("{at}.end"),
+            format!("end {end} s is before start {start} s"),
+        ));
+    }
+}
+
+/// Every line and word through `map`, held inside `[0, duration]`. Order and nesting are
+/// kept because the map is monotone; nothing else about the labels changes.
+pub fn remap_lines(lines: &[Line], map: &TimeMap, duration: f64) -> Vec<Line> {
+    let put = |t: f64| map.apply(t).clamp(0.0, duration);
+    lines
+        .iter()
+        .map(|line| Line {
+            start: put(line.start),
+            end: put(line.end),
+            words: line
+                .words
+                .iter()
+                .map(|w| Word {
+                    start: put(w.start),
+                    end: put(w.end),
+                    ..w.clone()
+                })
+                .collect(),
+            ..line.clone()
+        })
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const GOOD: &str = r#"{"id":"a","audio":"a.wav","lines":[{"start":0.5,"end":1.5,"text":"bay three","speaker":"p1","words":[{"start":0.5,"end":0.9,"text":"bay"},{"start":1.0,"end":1.5,"text":"three"}]}],"site":"north"}"#;
+
+    #[test]
+    fn round_trip_keeps_unknown_fields() {
+        let clip = parse_clip(GOOD).unwrap();
+        assert_eq!(clip.extra.get("site"), Some(&Value::from("north")));
+        let mut buf = Vec::new();
+        write_manifest(&mut buf, [&clip]).unwrap();
+        let back = parse_clip(std::str::from_utf8(&buf).unwrap().trim_end()).unwrap();
+        assert_eq!(back, clip);
+        assert!(validate(&clip, Some(2.0)).is_empty());
+    }
+
+    #[test]
+    fn bad_field_type_names_the_path() {
+        let bad = GOOD.replace(r#""end":0.9"#, r#""end":"late""#);
+        let (field, msg) = parse_clip(&bad).unwrap_err();
+        assert_eq!(field, "lines[0].words[0].end");
+        assert!(msg.contains("invalid type"), "{msg}");
+    }
+
+    #[test]
+    fn nan_is_not_json() {
+        let bad = GOOD.replace("0.9", "NaN");
+        assert!(parse_clip(&bad).is_err());
+    }
+
+    #[test]
+    fn empty_line_is_a_problem() {
+        assert!(parse_clip("   ").unwrap_err().1.contains("empty line"));
+    }
+
+    #[test]
+    fn validation_finds_each_kind_of_problem() {
+        let clip = parse_clip(GOOD).unwrap();
+        let fields = |c: &Clip, d| {
+            validate(c, d)
+                .into_iter()
+                .map(|(f, _)| f)
+                .collect::<Vec<_>>()
+        };
+        // Past the end of a 1.2 s audio.
+        assert_eq!(
+            fields(&clip, Some(1.2)),
+            ["lines[0].end", "lines[0].words[1].end"]
+        );
+        let mut c = clip.clone();
+        c.lines.as_mut().unwrap()[0].words[1].start = 0.8;
+        assert_eq!(fields(&c, Some(2.0)), ["lines[0].words[1].start"]);
+        let mut c = clip.clone();
+        c.lines.as_mut().unwrap()[0].words.swap(0, 1);
+        assert_eq!(fields(&c, Some(2.0)), ["lines[0].words[1].start"]);
+        let mut c = clip.clone();
+        c.lines.as_mut().unwrap()[0].end = 0.2;
+        let f = fields(&c, Some(2.0));
+        assert!(
+            f.contains(&"lines[0].end".to_string()) && f.contains(&"lines[0].words[1]".to_string()),
+            "{f:?}"
+        );
+        let mut c = clip.clone();
+        c.lines.as_mut().unwrap()[0].start = -0.1;
+        assert_eq!(fields(&c, Some(2.0)), ["lines[0].start"]);
+        let mut c = clip;
+        c.lines.as_mut().unwrap()[0].words[0].end = f64::NAN;
+        assert!(fields(&c, Some(2.0)).contains(&"lines[0].words[0].end".to_string()));
+    }
+
+    #[test]
+    fn remap_keeps_nesting_and_bounds() {
+        let clip = parse_clip(GOOD).unwrap();
+        let map = TimeMap::linear(2.0, 2.0 / 1.1);
+        let lines = remap_lines(clip.lines.as_ref().unwrap(), &map, 2.0 / 1.1);
+        let w = &lines[0].words[1];
+        assert!((w.start - 1.0 / 1.1).abs() < 1e-12 && (w.end - 1.5 / 1.1).abs() < 1e-12);
+        let c = Clip {
+            lines: Some(lines),
+            ..clip
+        };
+        assert!(validate(&c, Some(2.0 / 1.1)).is_empty());
+    }
+}

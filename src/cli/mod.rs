@@ -1,0 +1,75 @@
+//! Command-line front end: parse, call the library, print. No signal processing here.
+
+mod check;
+mod run;
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+
+/// Exit status when the run finished but some clips went to the rejects file.
+pub const EXIT_REJECTS: u8 = 3;
+
+/// Grow a small, time-aligned speech set into a large augmented one, labels kept aligned.
+#[derive(Debug, Parser)]
+#[command(name = "retake", version, about, long_about = None)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+enum Command {
+    /// Make takes of every clip in a manifest, as a recipe says.
+    Run {
+        /// The recipe (TOML).
+        recipe: PathBuf,
+        /// Input manifest (JSON Lines, one clip per line).
+        #[arg(long, short)]
+        input: PathBuf,
+        /// Output folder: takes/, manifest.jsonl and rejects.jsonl are written here.
+        #[arg(long, short)]
+        out: PathBuf,
+        /// Worker threads (default: one per core).
+        #[arg(long, short = 'j')]
+        threads: Option<usize>,
+    },
+    /// Validate a manifest and its audio; one message per problem.
+    Check {
+        /// The manifest to check.
+        manifest: PathBuf,
+    },
+    /// Run the bundled recipe on the bundled demo clips (a cold-store warehouse).
+    Demo {
+        /// Output folder.
+        #[arg(long, short, default_value = "retake-demo")]
+        out: PathBuf,
+        /// Worker threads (default: one per core).
+        #[arg(long, short = 'j')]
+        threads: Option<usize>,
+    },
+}
+
+/// Parse the command line and run the command.
+pub fn main() -> ExitCode {
+    let cli = Cli::parse();
+    match cli.command {
+        Command::Run {
+            recipe,
+            input,
+            out,
+            threads,
+        } => run::run(&recipe, &input, &out, threads),
+        Command::Check { manifest } => check::check(&manifest),
+        Command::Demo { out, threads } => {
+            let demo = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo_audio");
+            run::run(
+                &demo.join("recipe.toml"),
+                &demo.join("manifest.jsonl"),
+                &out,
+                threads,
+            )
+        }
+    }
+}

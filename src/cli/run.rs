@@ -1,0 +1,91 @@
+//! `retake run` and `retake demo`: progress bar and closing summary.
+
+use std::path::Path;
+use std::process::ExitCode;
+
+use indicatif::{ProgressBar, ProgressStyle};
+use retake::recipe;
+use retake::run::{self, Event, REJECTS_NAME, RunSpec, Summary};
+
+pub fn run(recipe_path: &Path, input: &Path, out: &Path, threads: Option<usize>) -> ExitCode {
+    let plan = match recipe::load(recipe_path) {
+        Ok(p) => p,
+        Err(e) => {
+            eprintln!("retake: recipe error: {e}");
+            return ExitCode::from(2);
+        }
+    };
+    // Hidden when stderr is not a terminal, so piped and logged runs stay clean.
+    let bar = ProgressBar::new(0);
+    bar.set_style(
+        ProgressStyle::with_template(
+            "{elapsed_precise} [{wide_bar}] {pos}/{len} clips, {msg}eta {eta}",
+        )
+        .expect("valid progress template")
+        .progress_chars("=> "),
+    );
+    let rejected = std::sync::atomic::AtomicUsize::new(0);
+    let on_event = |e: Event| match e {
+        Event::Started { clips } => bar.set_length(clips as u64),
+        Event::ClipDone { ok } => {
+            if !ok {
+                let n = rejected.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+                bar.set_message(format!("{n} rejected, "));
+            }
+            bar.inc(1);
+        }
+    };
+    let spec = RunSpec {
+        plan: &plan,
+        input,
+        out,
+        threads,
+    };
+    let result = run::run(&spec, &on_event);
+    bar.finish_and_clear();
+    match result {
+        Err(e) => {
+            eprintln!("retake: {e}");
+            ExitCode::FAILURE
+        }
+        Ok(summary) => {
+            print_summary(&summary, out);
+            if summary.rejected > 0 {
+                ExitCode::from(super::EXIT_REJECTS)
+            } else {
+                ExitCode::SUCCESS
+            }
+        }
+    }
+}
+
+fn print_summary(s: &Summary, out: &Path) {
+    let speed = if s.wall_seconds > 0.0 {
+        s.seconds_out / s.wall_seconds
+    } else {
+        0.0
+    };
+    println!(
+        "clips   {} read, {} done, {} rejected",
+        s.clips_in, s.clips_done, s.rejected
+    );
+    println!("takes   {} written", s.takes);
+    println!(
+        "audio   {:.3} h in, {:.3} h out ({:.1} s in, {:.1} s out)",
+        s.seconds_in / 3600.0,
+        s.seconds_out / 3600.0,
+        s.seconds_in,
+        s.seconds_out
+    );
+    println!(
+        "time    {:.2} s, {:.0}x real time (output audio per wall second)",
+        s.wall_seconds, speed
+    );
+    println!("output  {}", out.join(run::MANIFEST_NAME).display());
+    if s.rejected > 0 {
+        println!(
+            "rejects {} (one line per clip, with the reason)",
+            out.join(REJECTS_NAME).display()
+        );
+    }
+}
