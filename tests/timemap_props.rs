@@ -6,9 +6,10 @@ use retake::timemap::TimeMap;
 
 /// A random monotone map on [0, d_in] with some flat pieces (cut-out stretches).
 fn arb_map(d_in: f64) -> impl Strategy<Value = TimeMap> {
-    (
-        prop::collection::vec((0.001f64..1.0, 0.0f64..3.0, prop::bool::weighted(0.15)), 1..8),
-    )
+    (prop::collection::vec(
+        (0.001f64..1.0, 0.0f64..3.0, prop::bool::weighted(0.15)),
+        1..8,
+    ),)
         .prop_map(move |(pieces,)| {
             let total: f64 = pieces.iter().map(|p| p.0).sum();
             let mut knots = vec![(0.0, 0.0)];

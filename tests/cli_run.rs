@@ -1,0 +1,386 @@
+//! End-to-end runs of the real binary in temporary folders: good clips, bad clips, bad
+//! recipes, thread-count independence and `check`.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+use serde_json::Value;
+
+fn retake(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_retake"))
+        .args(args)
+        .output()
+        .expect("run retake")
+}
+
+fn write_wav(path: &Path, rate: u32, samples: &[f32]) {
+    let spec = hound::WavSpec {
+        channels: 1,
+        sample_rate: rate,
+        bits_per_sample: 16,
+        sample_format: hound::SampleFormat::Int,
+    };
+    let mut w = hound::WavWriter::create(path, spec).unwrap();
+    for &s in samples {
+        w.write_sample((s * 32767.0) as i16).unwrap();
+    }
+    w.finalize().unwrap();
+}
+
+/// Tone bursts standing in for words: 0.3 s bursts every 0.6 s from 0.2 s.
+fn bursts(rate: u32, secs: f64) -> Vec<f32> {
+    let n = (secs * f64::from(rate)) as usize;
+    (0..n)
+        .map(|i| {
+            let t = i as f64 / f64::from(rate);
+            let on = t >= 0.2 && ((t - 0.2) % 0.6) < 0.3;
+            if on {
+                (0.5 * (2.0 * std::f64::consts::PI * 300.0 * t).sin()) as f32
+            } else {
+                0.0
+            }
+        })
+        .collect()
+}
+
+const RECIPE: &str = r#"
+seed = 11
+takes = 3
+keep_source = true
+rate = 16000
+
+[[step]]
+do = "speed"
+factor = [0.9, 1.1]
+
+[[step]]
+do = "gain"
+db = { low = -3.0, high = 3.0 }
+"#;
+
+fn line(id: &str, audio: &str, words: &[(f64, f64, &str)]) -> String {
+    let ws: Vec<Value> = words
+        .iter()
+        .map(|(s, e, t)| serde_json::json!({"start": s, "end": e, "text": t}))
+        .collect();
+    let (s, e) = (words[0].0, words[words.len() - 1].1);
+    let text: Vec<&str> = words.iter().map(|w| w.2).collect();
+    serde_json::json!({"id": id, "audio": audio, "lines": [{"start": s, "end": e, "text": text.join(" "), "words": ws}]})
+        .to_string()
+}
+
+const WORDS: &[(f64, f64, &str)] = &[(0.2, 0.5, "bay"), (0.8, 1.1, "four"), (1.4, 1.7, "clear")];
+
+fn setup_good(dir: &Path) -> PathBuf {
+    write_wav(&dir.join("a.wav"), 16000, &bursts(16000, 2.0));
+    write_wav(&dir.join("b.wav"), 44100, &bursts(44100, 2.0));
+    std::fs::write(dir.join("recipe.toml"), RECIPE).unwrap();
+    let manifest = dir.join("in.jsonl");
+    std::fs::write(
+        &manifest,
+        [line("a", "a.wav", WORDS), line("b", "b.wav", WORDS)].join("\n") + "\n",
+    )
+    .unwrap();
+    manifest
+}
+
+fn read_jsonl(path: &Path) -> Vec<Value> {
+    std::fs::read_to_string(path)
+        .unwrap()
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect()
+}
+
+fn files_under(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut out = Vec::new();
+    let mut stack = vec![dir.to_path_buf()];
+    while let Some(d) = stack.pop() {
+        for e in std::fs::read_dir(d).unwrap() {
+            let p = e.unwrap().path();
+            if p.is_dir() {
+                stack.push(p);
+            } else {
+                out.push((
+                    p.strip_prefix(dir).unwrap().display().to_string(),
+                    std::fs::read(&p).unwrap(),
+                ));
+            }
+        }
+    }
+    out.sort();
+    out
+}
+
+#[test]
+fn run_writes_takes_with_rewritten_labels_and_check_accepts_them() {
+    let tmp = tempfile::tempdir().unwrap();
+    let manifest = setup_good(tmp.path());
+    let out = tmp.path().join("out");
+    let o = retake(&[
+        "run",
+        tmp.path().join("recipe.toml").to_str().unwrap(),
+        "--input",
+        manifest.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let takes = read_jsonl(&out.join("manifest.jsonl"));
+    assert_eq!(takes.len(), 6);
+    assert_eq!(
+        std::fs::read_to_string(out.join("rejects.jsonl")).unwrap(),
+        ""
+    );
+    for t in &takes {
+        let origin = &t["origin"];
+        let k = origin["take"].as_u64().unwrap();
+        let d = t["duration"].as_f64().unwrap();
+        let speed = &origin["steps"][0];
+        if k == 0 {
+            // keep_source: take 0 is the clip at the recipe rate, untouched.
+            assert_eq!(speed["ran"], false);
+            assert!((d - 2.0).abs() < 1e-3, "{d}");
+        } else {
+            let f = speed["drawn"]["factor"].as_f64().unwrap();
+            assert!(f == 0.9 || f == 1.1, "{f}");
+            // Speed perturbation: duration d/f and every timing t/f (physics).
+            assert!((d - 2.0 / f).abs() < 2e-4, "duration {d} for factor {f}");
+            let w = &t["lines"][0]["words"][1];
+            assert!((w["start"].as_f64().unwrap() - 0.8 / f).abs() < 2e-4);
+            assert!((w["end"].as_f64().unwrap() - 1.1 / f).abs() < 2e-4);
+        }
+        assert_eq!(
+            origin["source_rate"],
+            if origin["source"] == "a" {
+                16000
+            } else {
+                44100
+            }
+        );
+    }
+    let o = retake(&["check", out.join("manifest.jsonl").to_str().unwrap()]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+}
+
+#[test]
+fn output_is_byte_identical_for_one_and_two_threads() {
+    let tmp = tempfile::tempdir().unwrap();
+    let manifest = setup_good(tmp.path());
+    let recipe = tmp.path().join("recipe.toml");
+    let mut results = Vec::new();
+    for threads in ["1", "2"] {
+        let out = tmp.path().join(format!("out{threads}"));
+        let o = retake(&[
+            "run",
+            recipe.to_str().unwrap(),
+            "-i",
+            manifest.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+            "--threads",
+            threads,
+        ]);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        results.push(files_under(&out));
+    }
+    assert_eq!(results[0].len(), 2 + 6);
+    assert!(
+        results[0] == results[1],
+        "outputs differ between --threads 1 and 2"
+    );
+}
+
+#[test]
+fn bad_clips_are_rejected_by_line_and_field_and_the_rest_complete() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path();
+    let manifest = setup_good(dir);
+    std::fs::write(
+        dir.join("garbage.wav"),
+        b"this is not audio at all, just words",
+    )
+    .unwrap();
+    let full = std::fs::read(dir.join("a.wav")).unwrap();
+    std::fs::write(dir.join("cut.wav"), &full[..full.len() / 2]).unwrap();
+    let mut lines = vec![
+        line("good", "a.wav", WORDS),                                    // 1
+        line("missing", "nowhere.wav", WORDS),                           // 2
+        line("garbage", "garbage.wav", WORDS),                           // 3
+        line("truncated", "cut.wav", WORDS),                             // 4
+        line("late", "a.wav", &[(0.2, 0.5, "bay"), (1.8, 2.5, "four")]), // 5
+        line("negative", "a.wav", &[(-0.2, 0.5, "bay")]),                // 6
+        line("backwards", "a.wav", &[(0.9, 0.5, "bay")]),                // 7
+        line(
+            "unsorted",
+            "a.wav",
+            &[(0.8, 1.1, "four"), (0.2, 0.5, "bay")],
+        ), // 8
+        line("overlap", "a.wav", &[(0.2, 0.9, "bay"), (0.8, 1.1, "four")]), // 9
+    ];
+    lines.push(line("nan", "a.wav", WORDS).replace("0.8", "NaN")); // 10
+    lines.push(String::new()); // 11
+    lines.push(line("also-good", "b.wav", WORDS)); // 12
+    std::fs::write(&manifest, lines.join("\n") + "\n").unwrap();
+    let out = dir.join("out");
+    let o = retake(&[
+        "run",
+        dir.join("recipe.toml").to_str().unwrap(),
+        "-i",
+        manifest.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(
+        o.status.code(),
+        Some(3),
+        "finished with rejects: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let takes = read_jsonl(&out.join("manifest.jsonl"));
+    let sources: std::collections::BTreeSet<&str> = takes
+        .iter()
+        .map(|t| t["origin"]["source"].as_str().unwrap())
+        .collect();
+    assert_eq!(
+        sources.into_iter().collect::<Vec<_>>(),
+        ["also-good", "good"]
+    );
+    let rejects = read_jsonl(&out.join("rejects.jsonl"));
+    let got: Vec<(u64, &str)> = rejects
+        .iter()
+        .map(|r| {
+            (
+                r["line"].as_u64().unwrap(),
+                r["field"].as_str().unwrap_or(""),
+            )
+        })
+        .collect();
+    assert_eq!(
+        got,
+        [
+            (2, "audio"),
+            (3, "audio"),
+            (4, "audio"),
+            (5, "lines[0].end"),
+            (6, "lines[0].start"),
+            (7, "lines[0].end"),
+            (8, "lines[0].words[1].start"),
+            (9, "lines[0].words[1].start"),
+            (10, ""),
+            (11, ""),
+        ]
+    );
+    let reasons: Vec<&str> = rejects
+        .iter()
+        .map(|r| r["reason"].as_str().unwrap())
+        .collect();
+    assert!(reasons[0].contains("nowhere.wav"), "{}", reasons[0]);
+    assert!(reasons[2].contains("truncated"), "{}", reasons[2]);
+    assert!(reasons[3].contains("past the end"), "{}", reasons[3]);
+    assert!(reasons[9].contains("empty line"), "{}", reasons[9]);
+    // Nothing half-written: only the good clips' takes, no temporary files.
+    let names: Vec<String> = files_under(&out.join("takes"))
+        .into_iter()
+        .map(|(n, _)| n)
+        .collect();
+    assert_eq!(names.len(), 6, "{names:?}");
+    assert!(
+        names
+            .iter()
+            .all(|n| n.starts_with("good.") || n.starts_with("also-good.")),
+        "{names:?}"
+    );
+}
+
+#[test]
+fn recipe_errors_name_file_line_and_key_and_write_nothing() {
+    let tmp = tempfile::tempdir().unwrap();
+    let manifest = setup_good(tmp.path());
+    let cases = [
+        (
+            RECIPE.replace("factor = [0.9, 1.1]", "factor = [0.9, 1.1]\nfactr = 2"),
+            10,
+            "unknown key `factr`",
+        ),
+        (
+            RECIPE.replace("low = -3.0, high = 3.0", "low = 3.0, high = -3.0"),
+            13,
+            "range low 3 is above high -3",
+        ),
+        (
+            RECIPE.replace("takes = 3", "takes = 3\nshuffle = true"),
+            4,
+            "unknown key `shuffle`",
+        ),
+        (
+            RECIPE.replace("do = \"gain\"", "do = \"gian\""),
+            12,
+            "unknown step `gian`",
+        ),
+    ];
+    for (text, want_line, want) in cases {
+        let recipe = tmp.path().join("bad.toml");
+        std::fs::write(&recipe, &text).unwrap();
+        let out = tmp.path().join("never");
+        let o = retake(&[
+            "run",
+            recipe.to_str().unwrap(),
+            "-i",
+            manifest.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+        ]);
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{err}");
+        assert!(
+            err.contains(&format!("bad.toml line {want_line}:")),
+            "want line {want_line}: {err}"
+        );
+        assert!(err.contains(want), "want `{want}`: {err}");
+        assert!(
+            !out.exists(),
+            "a failed recipe must not create the output folder"
+        );
+    }
+}
+
+#[test]
+fn check_reports_every_problem_with_line_and_field() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path();
+    let manifest = setup_good(dir);
+    let lines = [
+        line("good", "a.wav", WORDS),
+        line("late", "a.wav", &[(0.2, 0.5, "bay"), (1.8, 2.5, "four")]),
+        line("missing", "gone.wav", WORDS),
+        String::new(),
+    ];
+    std::fs::write(&manifest, lines.join("\n") + "\n").unwrap();
+    let o = retake(&["check", manifest.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&o.stderr);
+    let m = manifest.display().to_string();
+    assert!(
+        err.contains(&format!("{m} line 2: lines[0].end: 2.5 s is past the end")),
+        "{err}"
+    );
+    assert!(
+        err.contains(&format!(
+            "{m} line 2: lines[0].words[1].end: 2.5 s is past the end"
+        )),
+        "{err}"
+    );
+    assert!(
+        err.contains(&format!("{m} line 3: audio: ")) && err.contains("gone.wav"),
+        "{err}"
+    );
+    assert!(err.contains(&format!("{m} line 4: empty line")), "{err}");
+    // Clean manifest: exit 0.
+    std::fs::write(&manifest, line("good", "a.wav", WORDS) + "\n").unwrap();
+    assert!(
+        retake(&["check", manifest.to_str().unwrap()])
+            .status
+            .success()
+    );
+}
