@@ -1,4 +1,5 @@
 //! Signal processing as pure functions over slices: no I/O, no printing.
 
+pub mod active_level;
 pub mod level;
 pub mod resample;
