@@ -1,13 +1,152 @@
-//! The `gain` step (to be written).
+//! The `gain` step: a level change with a peak guard. The drawn gain is applied unless the
+//! take's peak would pass the ceiling; then the gain is lowered so the peak sits at the
+//! ceiling. Timings do not move.
 
-use crate::recipe::{Params, RecipeError};
-use crate::steps::{PlanContext, Step};
+use serde_json::{Map, Value};
 
-/// Read the step's keys.
+use crate::audio::Audio;
+use crate::dsp::level::{amplitude_db, db_to_amplitude, peak};
+use crate::recipe::{Draw, Params, RecipeError};
+use crate::seed::TakeRng;
+use crate::steps::{PlanContext, Step, StepError, StepOutput};
+use crate::timemap::TimeMap;
+
+/// Lowest and highest gain, in dB, a recipe may draw.
+pub const DB_LIMITS: (f64, f64) = (-60.0, 40.0);
+
+/// The ceiling when a recipe names none, in dBFS.
+pub const DEFAULT_CEILING_DB: f64 = -1.0;
+
+/// A drawn gain with a peak ceiling.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Gain {
+    /// The gain in dB.
+    pub db: Draw,
+    /// The highest peak the result may have, in dBFS (at most 0).
+    pub ceiling_db: f64,
+}
+
+/// Read the step's keys: `db` (a draw, required, every value in [-60, 40]) and
+/// `ceiling_db` (a number, default -1, at most 0).
 ///
 /// # Errors
-/// A missing or impossible key.
+/// A missing gain, a gain that can be drawn outside the limits, a ceiling above 0 dBFS.
 pub fn parse(params: &mut Params<'_>, ctx: &PlanContext) -> Result<Box<dyn Step>, RecipeError> {
     let _ = ctx;
-    Err(params.error("do", "not written yet"))
+    let db = params.draw("db", None)?;
+    let (lo, hi) = DB_LIMITS;
+    if !db.within(lo, hi) {
+        let (a, b) = db.bounds();
+        return Err(params.error(
+            "db",
+            format!(
+                "gains from {a} to {b} dB can be drawn; every gain must lie in [{lo}, {hi}] dB"
+            ),
+        ));
+    }
+    let ceiling_db = params.number("ceiling_db", DEFAULT_CEILING_DB)?;
+    if ceiling_db > 0.0 {
+        return Err(params.error(
+            "ceiling_db",
+            format!("{ceiling_db} dBFS is above full scale; the ceiling must be at most 0"),
+        ));
+    }
+    Ok(Box::new(Gain { db, ceiling_db }))
+}
+
+impl Step for Gain {
+    fn name(&self) -> &'static str {
+        "gain"
+    }
+
+    fn apply(&self, audio: Audio, rng: &mut TakeRng) -> Result<StepOutput, StepError> {
+        let db = self.db.sample(rng);
+        let duration = audio.duration();
+        if audio.samples.is_empty() {
+            return Err(StepError {
+                step: "gain",
+                reason: "the take is empty".into(),
+            });
+        }
+        let ceiling = db_to_amplitude(self.ceiling_db);
+        let before = peak(&audio.samples);
+        let mut factor = db_to_amplitude(db);
+        if before * factor > ceiling {
+            factor = ceiling / before;
+        }
+        let mut samples = audio.samples;
+        let source = samples.clone();
+        scale(&source, factor, &mut samples);
+        // f32 rounding can leave the peak an ulp above the ceiling: nudge until it holds.
+        while peak(&samples) > ceiling {
+            factor *= 1.0 - f64::from(f32::EPSILON);
+            scale(&source, factor, &mut samples);
+        }
+        let after = peak(&samples);
+        let mut drawn = Map::new();
+        drawn.insert("db".into(), Value::from(db));
+        let mut measured = Map::new();
+        measured.insert("applied_db".into(), Value::from(amplitude_db(factor)));
+        // A silent take has no peak level: recorded as null.
+        measured.insert("peak_dbfs".into(), Value::from(amplitude_db(after)));
+        Ok(StepOutput {
+            audio: Audio {
+                rate: audio.rate,
+                samples,
+            },
+            map: TimeMap::identity(duration),
+            drawn,
+            measured,
+        })
+    }
+}
+
+fn scale(source: &[f32], factor: f64, out: &mut [f32]) {
+    let f = factor as f32;
+    for (o, &s) in out.iter_mut().zip(source) {
+        *o = s * f;
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use std::path::Path;
+
+    use super::*;
+    use crate::recipe::{Plan, parse as parse_recipe};
+
+    fn recipe(step: &str) -> Result<Plan, RecipeError> {
+        parse_recipe(
+            Path::new("r.toml"),
+            &format!("takes = 2\n\n[[step]]\ndo = \"gain\"\n{step}\n"),
+        )
+    }
+
+    #[test]
+    fn bad_keys_name_key_and_line() {
+        let e = recipe("db = { low = -80, high = 0 }").unwrap_err();
+        assert_eq!(e.line, Some(5), "{e}");
+        assert!(e.message.contains("step 1 (gain): db:"), "{e}");
+        assert!(e.message.contains("[-60, 40]"), "{e}");
+        let e = recipe("db = 3\nceiling_db = 0.5").unwrap_err();
+        assert_eq!(e.line, Some(6), "{e}");
+        assert!(e.message.contains("ceiling_db: 0.5 dBFS"), "{e}");
+        assert!(recipe("").unwrap_err().message.contains("db: missing"));
+    }
+
+    #[test]
+    fn silent_take_records_no_peak() {
+        let plan = recipe("db = 6").unwrap();
+        let audio = Audio {
+            rate: 16_000,
+            samples: vec![0.0; 100],
+        };
+        let out = plan.steps[0]
+            .step
+            .apply(audio, &mut TakeRng::new(1))
+            .unwrap();
+        assert_eq!(out.measured["peak_dbfs"], Value::Null);
+        assert_eq!(out.drawn["db"], 6.0);
+        assert!((out.measured["applied_db"].as_f64().unwrap() - 6.0).abs() < 1e-12);
+    }
 }
