@@ -3,9 +3,15 @@
 //! Steps work on one channel: a multichannel file is reduced when it is decoded, by the
 //! recipe's [`ChannelPolicy`].
 
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 use serde::{Deserialize, Serialize};
+
+mod decode;
+mod encode;
+
+pub use decode::decode;
+pub use encode::write_wav;
 
 /// Mono samples in [-1, 1] at a known rate.
 #[derive(Debug, Clone, PartialEq)]
@@ -38,7 +44,7 @@ pub enum ChannelPolicy {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
 #[serde(rename_all = "lowercase")]
 pub enum SampleFormat {
-    /// 16-bit signed PCM (rounded, clamped to the 16-bit range).
+    /// 16-bit signed PCM: `round(x * 32767)`, clamped to [-32768, 32767].
     #[default]
     Pcm16,
     /// 32-bit IEEE float.
@@ -71,7 +77,7 @@ pub enum AudioError {
         path: PathBuf,
         /// Frames the header promises.
         declared: u64,
-        /// Frames actually decoded.
+        /// Frames decoded before the stream ended.
         found: u64,
     },
     /// The recipe picks a channel the file does not have.
@@ -100,24 +106,4 @@ pub enum AudioError {
         /// What the writer said.
         reason: String,
     },
-}
-
-/// Decode a file (WAV PCM 8/16/24/32 and float, FLAC, MP3, Ogg Vorbis) to one channel.
-///
-/// # Errors
-/// Missing or unreadable file, an undecodable or truncated stream, or a picked channel the
-/// file lacks.
-pub fn decode(path: &Path, channels: ChannelPolicy) -> Result<Audio, AudioError> {
-    let _ = (path, channels);
-    todo!("audio::decode")
-}
-
-/// Write a WAV file in the given format. The caller picks the name (the runner writes to a
-/// temporary name and renames).
-///
-/// # Errors
-/// A non-finite sample (nothing is written) or a failing writer.
-pub fn write_wav(path: &Path, audio: &Audio, format: SampleFormat) -> Result<(), AudioError> {
-    let _ = (path, audio, format);
-    todo!("audio::write_wav")
 }
