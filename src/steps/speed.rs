@@ -65,7 +65,8 @@ impl Step for Speed {
                 samples: resample::speed(&audio.samples, factor),
             }
         };
-        // The written samples fix the take's duration; the map ends exactly there.
+        // The written samples fix the take's duration (the output length is rounded to a
+        // whole sample); the content itself moves exactly t -> t / factor, and that is the map.
         let d_out = audio.duration();
         let mut drawn = Map::new();
         drawn.insert("factor".into(), Value::from(factor));
@@ -73,7 +74,7 @@ impl Step for Speed {
         measured.insert("duration_s".into(), Value::from(d_out));
         Ok(StepOutput {
             audio,
-            map: TimeMap::linear(d_in, d_out),
+            map: TimeMap::linear(d_in, d_in / factor),
             drawn,
             measured,
         })

@@ -65,6 +65,8 @@ pub fn read_f64(path: &Path) -> Vec<f64> {
 pub fn sine(freq: f64, secs: f64, rate: u32, amp: f64) -> Vec<f32> {
     let n = (secs * f64::from(rate)).round() as usize;
     (0..n)
-        .map(|i| (amp * (2.0 * std::f64::consts::PI * freq * i as f64 / f64::from(rate)).sin()) as f32)
+        .map(|i| {
+            (amp * (2.0 * std::f64::consts::PI * freq * i as f64 / f64::from(rate)).sin()) as f32
+        })
         .collect()
 }
