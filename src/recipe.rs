@@ -190,6 +190,39 @@ impl<'a> Params<'a> {
         }
     }
 
+    /// A draw under `key` (or `default`) whose every possible value lies in `[lo, hi]`;
+    /// `unit` (e.g. "dB", "Hz", or "") is used in the message.
+    ///
+    /// # Errors
+    /// As [`Params::draw`], or a draw that can give a value outside the limits.
+    pub fn draw_within(
+        &mut self,
+        key: &str,
+        default: Option<Draw>,
+        (lo, hi): (f64, f64),
+        unit: &str,
+    ) -> Result<Draw, RecipeError> {
+        let draw = self.draw(key, default)?;
+        if draw.within(lo, hi) {
+            return Ok(draw);
+        }
+        let unit = if unit.is_empty() {
+            String::new()
+        } else {
+            format!(" {unit}")
+        };
+        let (a, b) = draw.bounds();
+        let can = if a == b {
+            format!("{a}{unit} can be drawn")
+        } else {
+            format!("values from {a} to {b}{unit} can be drawn")
+        };
+        Err(self.error(
+            key,
+            format!("{can}; every value must lie in [{lo}, {hi}]{unit}"),
+        ))
+    }
+
     /// A single number under `key`, or `default` when absent.
     ///
     /// # Errors
@@ -476,6 +509,16 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
         channels,
         steps: planned,
     })
+}
+
+/// Test support: a plan with one step of kind `kind` whose keys are `body`; the step's
+/// table starts on line 4, so its first key is on line 5.
+#[cfg(test)]
+pub(crate) fn one_step_plan(kind: &str, body: &str) -> Result<Plan, RecipeError> {
+    parse(
+        Path::new("r.toml"),
+        &format!("takes = 2\n\n[[step]]\ndo = \"{kind}\"\n{body}\n"),
+    )
 }
 
 #[cfg(test)]

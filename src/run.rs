@@ -17,6 +17,7 @@ use crate::audio::{self, Audio};
 use crate::dsp::resample::resample;
 use crate::recipe::Plan;
 use crate::seed::{TakeRng, step_seed, take_seed};
+use crate::steps::TakeContext;
 use crate::timemap::TimeMap;
 use crate::transcript::{
     self, Clip, Entry, Manifest, Origin, Problem, StepRecord, read_manifest, remap_lines, validate,
@@ -297,6 +298,13 @@ fn make_take(
     let mut map = TimeMap::identity(base.duration());
     let mut records = Vec::with_capacity(plan.steps.len());
     let untouched = plan.keep_source && k == 0;
+    let source_lines: Vec<(f64, f64)> = clip
+        .lines
+        .iter()
+        .flatten()
+        .map(|l| (l.start, l.end))
+        .collect();
+    let mut lines_now = source_lines.clone();
     for (i, planned) in plan.steps.iter().enumerate() {
         let mut rng = TakeRng::new(step_seed(seed, i));
         let mut record = StepRecord {
@@ -306,12 +314,21 @@ fn make_take(
             measured: Default::default(),
         };
         if !untouched && rng.chance(planned.chance) {
+            let take = TakeContext { lines: &lines_now };
             let done = planned
                 .step
-                .apply(audio, &mut rng)
+                .apply(audio, &take, &mut rng)
                 .map_err(|e| (format!("step {} ({})", i + 1, e.step), e.reason))?;
             audio = done.audio;
             map = map.then(&done.map);
+            let end = audio.duration();
+            lines_now = source_lines
+                .iter()
+                .map(|&(a, b)| {
+                    let (a, b) = map.apply_span(a, b);
+                    (a.min(end), b.min(end))
+                })
+                .collect();
             record.ran = true;
             record.drawn = done.drawn;
             record.measured = done.measured;

@@ -12,7 +12,7 @@ use retake::dsp::level::{amplitude_db, peak};
 use retake::dsp::resample::{output_len, resample, speed};
 use retake::recipe::{self, Plan};
 use retake::seed::TakeRng;
-use retake::steps::StepOutput;
+use retake::steps::{StepOutput, TakeContext};
 
 fn plan(step: &str) -> Plan {
     recipe::parse(
@@ -25,7 +25,7 @@ fn plan(step: &str) -> Plan {
 fn run(step: &str, audio: Audio, seed: u64) -> StepOutput {
     plan(step).steps[0]
         .step
-        .apply(audio, &mut TakeRng::new(seed))
+        .apply(audio, &TakeContext::default(), &mut TakeRng::new(seed))
         .unwrap_or_else(|e| panic!("{e}"))
 }
 

@@ -8,7 +8,7 @@ use crate::audio::Audio;
 use crate::dsp::level::{amplitude_db, db_to_amplitude, peak};
 use crate::recipe::{Draw, Params, RecipeError};
 use crate::seed::TakeRng;
-use crate::steps::{PlanContext, Step, StepError, StepOutput};
+use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};
 use crate::timemap::TimeMap;
 
 /// Lowest and highest gain, in dB, a recipe may draw.
@@ -33,17 +33,7 @@ pub struct Gain {
 /// A missing gain, a gain that can be drawn outside the limits, a ceiling above 0 dBFS.
 pub fn parse(params: &mut Params<'_>, ctx: &PlanContext) -> Result<Box<dyn Step>, RecipeError> {
     let _ = ctx;
-    let db = params.draw("db", None)?;
-    let (lo, hi) = DB_LIMITS;
-    if !db.within(lo, hi) {
-        let (a, b) = db.bounds();
-        return Err(params.error(
-            "db",
-            format!(
-                "gains from {a} to {b} dB can be drawn; every gain must lie in [{lo}, {hi}] dB"
-            ),
-        ));
-    }
+    let db = params.draw_within("db", None, DB_LIMITS, "dB")?;
     let ceiling_db = params.number("ceiling_db", DEFAULT_CEILING_DB)?;
     if ceiling_db > 0.0 {
         return Err(params.error(
@@ -59,14 +49,16 @@ impl Step for Gain {
         "gain"
     }
 
-    fn apply(&self, audio: Audio, rng: &mut TakeRng) -> Result<StepOutput, StepError> {
+    fn apply(
+        &self,
+        audio: Audio,
+        _take: &TakeContext<'_>,
+        rng: &mut TakeRng,
+    ) -> Result<StepOutput, StepError> {
         let db = self.db.sample(rng);
         let duration = audio.duration();
         if audio.samples.is_empty() {
-            return Err(StepError {
-                step: "gain",
-                reason: "the take is empty".into(),
-            });
+            return Err(StepError::empty_take("gain"));
         }
         let ceiling = db_to_amplitude(self.ceiling_db);
         let before = peak(&audio.samples);
@@ -110,16 +102,11 @@ fn scale(source: &[f32], factor: f64, out: &mut [f32]) {
 
 #[cfg(test)]
 mod tests {
-    use std::path::Path;
-
     use super::*;
-    use crate::recipe::{Plan, parse as parse_recipe};
+    use crate::recipe::{Plan, one_step_plan};
 
     fn recipe(step: &str) -> Result<Plan, RecipeError> {
-        parse_recipe(
-            Path::new("r.toml"),
-            &format!("takes = 2\n\n[[step]]\ndo = \"gain\"\n{step}\n"),
-        )
+        one_step_plan("gain", step)
     }
 
     #[test]
@@ -143,7 +130,7 @@ mod tests {
         };
         let out = plan.steps[0]
             .step
-            .apply(audio, &mut TakeRng::new(1))
+            .apply(audio, &TakeContext::default(), &mut TakeRng::new(1))
             .unwrap();
         assert_eq!(out.measured["peak_dbfs"], Value::Null);
         assert_eq!(out.drawn["db"], 6.0);

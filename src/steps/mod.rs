@@ -41,6 +41,24 @@ pub struct StepError {
     pub reason: String,
 }
 
+impl StepError {
+    /// The take has no samples, so no time map can describe it.
+    pub fn empty_take(step: &'static str) -> Self {
+        StepError {
+            step,
+            reason: "the take is empty".into(),
+        }
+    }
+}
+
+/// What a step may know about the take besides its audio.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct TakeContext<'a> {
+    /// The timed lines as `(start, end)` in the take's current timeline (all earlier steps'
+    /// maps applied), in seconds; empty for an untimed clip.
+    pub lines: &'a [(f64, f64)],
+}
+
 /// Facts about the run that step parsers may need to check their parameters.
 #[derive(Debug, Clone, Copy)]
 pub struct PlanContext {
@@ -57,7 +75,12 @@ pub trait Step: Send + Sync + std::fmt::Debug {
     ///
     /// # Errors
     /// When the take cannot be processed; the clip is rejected with the reason.
-    fn apply(&self, audio: Audio, rng: &mut TakeRng) -> Result<StepOutput, StepError>;
+    fn apply(
+        &self,
+        audio: Audio,
+        take: &TakeContext<'_>,
+        rng: &mut TakeRng,
+    ) -> Result<StepOutput, StepError>;
 }
 
 /// Reads a step's keys from its `[[step]]` table.

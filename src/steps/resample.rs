@@ -7,7 +7,7 @@ use crate::audio::Audio;
 use crate::dsp::resample::resample;
 use crate::recipe::{Draw, Params, RecipeError};
 use crate::seed::TakeRng;
-use crate::steps::{PlanContext, Step, StepError, StepOutput};
+use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};
 use crate::timemap::TimeMap;
 
 /// Lowest and highest rate, in Hz, a take may pass through.
@@ -26,8 +26,8 @@ pub struct Resample {
 /// A missing rate, a rate that is not a whole number or one outside the limits.
 pub fn parse(params: &mut Params<'_>, ctx: &PlanContext) -> Result<Box<dyn Step>, RecipeError> {
     let _ = ctx;
-    let via_rate = params.draw("via_rate", None)?;
     let (lo, hi) = VIA_RATE_LIMITS;
+    let via_rate = params.draw_within("via_rate", None, (f64::from(lo), f64::from(hi)), "Hz")?;
     let whole: Vec<f64> = match &via_rate {
         Draw::Fixed(v) => vec![*v],
         Draw::Pick(vs) => vs.clone(),
@@ -35,15 +35,6 @@ pub fn parse(params: &mut Params<'_>, ctx: &PlanContext) -> Result<Box<dyn Step>
     };
     if let Some(v) = whole.iter().find(|v| v.fract() != 0.0) {
         return Err(params.error("via_rate", format!("{v} is not a whole number of Hz")));
-    }
-    if !via_rate.within(f64::from(lo), f64::from(hi)) {
-        let (a, b) = via_rate.bounds();
-        return Err(params.error(
-            "via_rate",
-            format!(
-                "rates from {a} to {b} Hz can be drawn; every rate must lie in [{lo}, {hi}] Hz"
-            ),
-        ));
     }
     Ok(Box::new(Resample { via_rate }))
 }
@@ -53,13 +44,15 @@ impl Step for Resample {
         "resample"
     }
 
-    fn apply(&self, audio: Audio, rng: &mut TakeRng) -> Result<StepOutput, StepError> {
+    fn apply(
+        &self,
+        audio: Audio,
+        _take: &TakeContext<'_>,
+        rng: &mut TakeRng,
+    ) -> Result<StepOutput, StepError> {
         let via = self.via_rate.sample(rng).round() as u32;
         if audio.samples.is_empty() {
-            return Err(StepError {
-                step: "resample",
-                reason: "the take is empty".into(),
-            });
+            return Err(StepError::empty_take("resample"));
         }
         let duration = audio.duration();
         let audio = if via == audio.rate {
@@ -88,16 +81,11 @@ impl Step for Resample {
 
 #[cfg(test)]
 mod tests {
-    use std::path::Path;
-
     use super::*;
-    use crate::recipe::{Plan, parse as parse_recipe};
+    use crate::recipe::{Plan, one_step_plan};
 
     fn recipe(step: &str) -> Result<Plan, RecipeError> {
-        parse_recipe(
-            Path::new("r.toml"),
-            &format!("takes = 2\n\n[[step]]\ndo = \"resample\"\n{step}\n"),
-        )
+        one_step_plan("resample", step)
     }
 
     #[test]
@@ -134,14 +122,14 @@ mod tests {
         };
         let out = plan.steps[0]
             .step
-            .apply(audio.clone(), &mut TakeRng::new(1))
+            .apply(audio.clone(), &TakeContext::default(), &mut TakeRng::new(1))
             .unwrap();
         assert_eq!(out.audio, audio);
 
         let plan = recipe("via_rate = { low = 7000, high = 9000 }").unwrap();
         let out = plan.steps[0]
             .step
-            .apply(audio, &mut TakeRng::new(1))
+            .apply(audio, &TakeContext::default(), &mut TakeRng::new(1))
             .unwrap();
         assert_eq!(out.audio.samples.len(), samples.len());
         assert_eq!(out.map, TimeMap::identity(16_001.0 / 16_000.0));

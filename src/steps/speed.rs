@@ -7,7 +7,7 @@ use crate::audio::Audio;
 use crate::dsp::resample;
 use crate::recipe::{Draw, Params, RecipeError};
 use crate::seed::TakeRng;
-use crate::steps::{PlanContext, Step, StepError, StepOutput};
+use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};
 use crate::timemap::TimeMap;
 
 /// Smallest and largest factor a recipe may draw: half and double speed.
@@ -26,20 +26,7 @@ pub struct Speed {
 /// A missing factor, or one that can draw a value outside the limits.
 pub fn parse(params: &mut Params<'_>, ctx: &PlanContext) -> Result<Box<dyn Step>, RecipeError> {
     let _ = ctx;
-    let factor = params.draw("factor", None)?;
-    let (lo, hi) = FACTOR_LIMITS;
-    if !factor.within(lo, hi) {
-        let (a, b) = factor.bounds();
-        let values = if a == b {
-            format!("{a}")
-        } else {
-            format!("values from {a} to {b}")
-        };
-        return Err(params.error(
-            "factor",
-            format!("{values} can be drawn; every value must lie in [{lo}, {hi}] (1 = unchanged)"),
-        ));
-    }
+    let factor = params.draw_within("factor", None, FACTOR_LIMITS, "")?;
     Ok(Box::new(Speed { factor }))
 }
 
@@ -48,13 +35,15 @@ impl Step for Speed {
         "speed"
     }
 
-    fn apply(&self, audio: Audio, rng: &mut TakeRng) -> Result<StepOutput, StepError> {
+    fn apply(
+        &self,
+        audio: Audio,
+        _take: &TakeContext<'_>,
+        rng: &mut TakeRng,
+    ) -> Result<StepOutput, StepError> {
         let factor = self.factor.sample(rng);
         if audio.samples.is_empty() {
-            return Err(StepError {
-                step: "speed",
-                reason: "the take is empty".into(),
-            });
+            return Err(StepError::empty_take("speed"));
         }
         let d_in = audio.duration();
         let audio = if factor == 1.0 {
@@ -83,16 +72,11 @@ impl Step for Speed {
 
 #[cfg(test)]
 mod tests {
-    use std::path::Path;
-
     use super::*;
-    use crate::recipe::{Plan, parse as parse_recipe};
+    use crate::recipe::{Plan, one_step_plan};
 
     fn recipe(step: &str) -> Result<Plan, RecipeError> {
-        parse_recipe(
-            Path::new("r.toml"),
-            &format!("takes = 2\n\n[[step]]\ndo = \"speed\"\n{step}\n"),
-        )
+        one_step_plan("speed", step)
     }
 
     #[test]
@@ -130,7 +114,7 @@ mod tests {
         };
         let out = plan.steps[0]
             .step
-            .apply(audio, &mut TakeRng::new(1))
+            .apply(audio, &TakeContext::default(), &mut TakeRng::new(1))
             .unwrap();
         // 1 s played 1.25 times faster lasts 0.8 s (physics).
         assert_eq!(out.audio.samples.len(), 12_800);
@@ -150,7 +134,7 @@ mod tests {
         };
         let out = plan.steps[0]
             .step
-            .apply(audio, &mut TakeRng::new(1))
+            .apply(audio, &TakeContext::default(), &mut TakeRng::new(1))
             .unwrap();
         assert_eq!(out.audio.samples, samples);
         assert_eq!(out.map, TimeMap::identity(0.125));
@@ -166,7 +150,7 @@ mod tests {
         assert!(
             plan.steps[0]
                 .step
-                .apply(audio, &mut TakeRng::new(1))
+                .apply(audio, &TakeContext::default(), &mut TakeRng::new(1))
                 .is_err()
         );
     }
