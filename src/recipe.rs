@@ -115,6 +115,27 @@ pub struct Plan {
     pub channels: ChannelPolicy,
     /// The steps, in order.
     pub steps: Vec<PlannedStep>,
+    /// A stable hash of the recipe text; with the fields above it tells whether finished
+    /// work in an output folder was made by this same plan (see [`Plan::fingerprint`]).
+    pub text_hash: u64,
+}
+
+impl Plan {
+    /// A stable hash of everything that decides the output: the recipe text and the
+    /// top-level fields (which a caller may have overridden after parsing).
+    pub fn fingerprint(&self) -> u64 {
+        let fields = format!(
+            "{}|{}|{}|{}|{:?}|{:?}|{}",
+            self.seed,
+            self.takes,
+            self.keep_source,
+            self.rate,
+            self.format,
+            self.channels,
+            env!("CARGO_PKG_VERSION")
+        );
+        crate::seed::stable_hash(&[&self.text_hash.to_le_bytes(), fields.as_bytes()])
+    }
 }
 
 /// Parameters of one `[[step]]` table, handed to the step's parser. Each key is taken once;
@@ -508,6 +529,7 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
         format,
         channels,
         steps: planned,
+        text_hash: crate::seed::stable_hash(&[text.as_bytes()]),
     })
 }
 

@@ -30,6 +30,9 @@ pub const MANIFEST_NAME: &str = "manifest.jsonl";
 pub const REJECTS_NAME: &str = "rejects.jsonl";
 /// Folder for take audio inside the output folder.
 pub const TAKES_DIR: &str = "takes";
+/// Folder of per-clip completion records inside the output folder: what lets a rerun of
+/// the same command skip the clips an interrupted run already finished.
+pub const DONE_DIR: &str = ".done";
 
 /// What the engine tells its caller while it works (the caller decides how to show it).
 #[derive(Debug, Clone, Copy)]
@@ -51,8 +54,10 @@ pub enum Event {
 pub struct Summary {
     /// Manifest lines read.
     pub clips_in: usize,
-    /// Clips whose takes were all written.
+    /// Clips whose takes were all written (this run or an earlier one).
     pub clips_done: usize,
+    /// Of those, clips found finished by an earlier run of the same plan and kept.
+    pub clips_resumed: usize,
     /// Clips (and unreadable lines) in `rejects.jsonl`.
     pub rejected: usize,
     /// Takes written.
@@ -148,6 +153,15 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
         path: takes_dir.clone(),
         source,
     })?;
+    let done_dir = spec.out.join(DONE_DIR);
+    std::fs::create_dir_all(&done_dir).map_err(|source| RunError::Output {
+        path: done_dir.clone(),
+        source,
+    })?;
+    remove_partial_files(&takes_dir).map_err(|source| RunError::Output {
+        path: takes_dir.clone(),
+        source,
+    })?;
     let threads = spec.threads.unwrap_or(0);
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
@@ -186,6 +200,7 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
         match result {
             Ok(done) => {
                 summary.clips_done += 1;
+                summary.clips_resumed += usize::from(done.resumed);
                 summary.seconds_in += done.seconds_in;
                 summary.takes += done.takes.len();
                 summary.seconds_out += done.takes.iter().filter_map(|c| c.duration).sum::<f64>();
@@ -208,9 +223,61 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
     Ok(summary)
 }
 
+/// A finished clip: its takes as manifest records. Also the content of its completion
+/// record in [`DONE_DIR`].
+#[derive(Debug, Serialize, serde::Deserialize)]
 struct ClipResult {
+    /// [`clip_fingerprint`] of the work this result is for.
+    fingerprint: String,
     seconds_in: f64,
     takes: Vec<Clip>,
+    #[serde(skip)]
+    resumed: bool,
+}
+
+/// What decides a clip's takes: the plan, the clip's manifest record and its audio file's
+/// size and modification time. A completion record with another fingerprint is stale.
+fn clip_fingerprint(plan: &Plan, clip: &Clip, audio_path: &Path) -> String {
+    let record = serde_json::to_string(clip).unwrap_or_default();
+    let file = std::fs::metadata(audio_path)
+        .map(|m| {
+            let modified = m
+                .modified()
+                .ok()
+                .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
+                .map_or(0, |d| d.as_nanos());
+            format!("{}|{modified}", m.len())
+        })
+        .unwrap_or_default();
+    let h = crate::seed::stable_hash(&[
+        &plan.fingerprint().to_le_bytes(),
+        record.as_bytes(),
+        file.as_bytes(),
+    ]);
+    format!("{h:016x}")
+}
+
+/// The clip's earlier result, when an earlier run of the same plan finished it and every
+/// take file is still there.
+fn finished_earlier(record: &Path, fingerprint: &str, out: &Path) -> Option<ClipResult> {
+    let text = std::fs::read_to_string(record).ok()?;
+    let mut done: ClipResult = serde_json::from_str(&text).ok()?;
+    if done.fingerprint != fingerprint || !done.takes.iter().all(|t| out.join(&t.audio).is_file()) {
+        return None;
+    }
+    done.resumed = true;
+    Some(done)
+}
+
+/// Remove `*.part` files an interrupted run left behind.
+fn remove_partial_files(dir: &Path) -> std::io::Result<()> {
+    for entry in std::fs::read_dir(dir)? {
+        let path = entry?.path();
+        if path.extension().is_some_and(|e| e == "part") {
+            std::fs::remove_file(&path)?;
+        }
+    }
+    Ok(())
 }
 
 fn process_clip(
@@ -230,6 +297,12 @@ fn process_clip(
         return Err(reject(&field, reason));
     }
     let path = manifest.base().join(&clip.audio);
+    let stem = file_stem(&clip.id);
+    let record = out.join(DONE_DIR).join(format!("{stem}.json"));
+    let fingerprint = clip_fingerprint(plan, clip, &path);
+    if let Some(done) = finished_earlier(&record, &fingerprint, out) {
+        return Ok(done);
+    }
     let source = audio::decode(&path, plan.channels).map_err(|e| reject("audio", e.to_string()))?;
     if source.samples.is_empty() {
         return Err(reject("audio", format!("{}: no samples", path.display())));
@@ -248,7 +321,6 @@ fn process_clip(
         }
     };
 
-    let stem = file_stem(&clip.id);
     let mut written: Vec<PathBuf> = Vec::new();
     let mut takes = Vec::with_capacity(plan.takes as usize);
     let outcome = (0..plan.takes).try_for_each(|k| {
@@ -271,13 +343,26 @@ fn process_clip(
         });
         Ok(())
     });
+    let done = ClipResult {
+        fingerprint,
+        seconds_in,
+        takes,
+        resumed: false,
+    };
+    let outcome = outcome.and_then(|()| {
+        write_atomically(&record, |w| {
+            serde_json::to_writer(&mut *w, &done)?;
+            Ok(())
+        })
+        .map_err(|e| reject("", e.to_string()))
+    });
     if let Err(r) = outcome {
         for f in written {
             let _ = std::fs::remove_file(f);
         }
         return Err(r);
     }
-    Ok(ClipResult { seconds_in, takes })
+    Ok(done)
 }
 
 struct Take {
@@ -404,7 +489,9 @@ fn write_atomically(
         path: path.to_path_buf(),
         source,
     };
-    let tmp = path.with_extension("jsonl.part");
+    let mut name = path.file_name().unwrap_or_default().to_os_string();
+    name.push(".part");
+    let tmp = path.with_file_name(name);
     let file = std::fs::File::create(&tmp).map_err(err)?;
     let mut w = std::io::BufWriter::new(file);
     fill(&mut w).map_err(err)?;

@@ -10,7 +10,8 @@ use rand_chacha::ChaCha8Rng;
 use rand_chacha::rand_core::{Rng, SeedableRng};
 
 /// FNV-1a over bytes, then the SplitMix64 finaliser: short, documented and stable forever.
-fn stable_hash(parts: &[&[u8]]) -> u64 {
+/// Used for seeds, file-name suffixes and run fingerprints.
+pub fn stable_hash(parts: &[&[u8]]) -> u64 {
     let mut h: u64 = 0xcbf2_9ce4_8422_2325;
     for part in parts {
         for &b in *part {

@@ -114,7 +114,8 @@ impl TimeMap {
         let i = k.partition_point(|&(x, _)| x <= t);
         let (x0, y0) = k[i - 1];
         let (x1, y1) = k[i];
-        let y = y0 + (y1 - y0) * (t - x0) / (x1 - x0);
+        // Slope form: an identity piece (slope exactly 1) gives back `t` exactly.
+        let y = y0 + (t - x0) * ((y1 - y0) / (x1 - x0));
         y.clamp(y0, y1)
     }
 
@@ -205,6 +206,14 @@ mod tests {
         let m = TimeMap::linear(2.2, 2.0);
         assert!((m.apply(1.1) - 1.0).abs() < 1e-12);
         assert_eq!(m.apply_span(0.0, 2.2), (0.0, 2.0));
+    }
+
+    #[test]
+    fn identity_gives_back_the_same_time_exactly() {
+        let m = TimeMap::identity(8.926_812_5);
+        for t in [0.237_875, 1.324_999_999_999_999_7, 7.802_688, 8.926_812_5] {
+            assert_eq!(m.apply(t), t);
+        }
     }
 
     #[test]

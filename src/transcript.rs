@@ -372,6 +372,27 @@ mod tests {
     }
 
     #[test]
+    fn times_survive_a_write_and_read_bit_for_bit() {
+        let mut clip = parse_clip(GOOD).unwrap();
+        let awkward = [
+            0.1 + 0.2,
+            0.237_874_999_999_999_98,
+            1.0 / 3.0,
+            7.802_688_000_000_001,
+        ];
+        clip.lines.as_mut().unwrap()[0].words[0].start = awkward[0];
+        for (w, t) in clip.lines.as_mut().unwrap()[0]
+            .words
+            .iter_mut()
+            .zip(&awkward[1..])
+        {
+            w.end = *t;
+        }
+        let text = serde_json::to_string(&clip).unwrap();
+        assert_eq!(parse_clip(&text).unwrap(), clip);
+    }
+
+    #[test]
     fn bad_field_type_names_the_path() {
         let bad = GOOD.replace(r#""end":0.9"#, r#""end":"late""#);
         let (field, msg) = parse_clip(&bad).unwrap_err();

@@ -186,7 +186,8 @@ fn output_is_byte_identical_for_one_and_two_threads() {
         assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
         results.push(files_under(&out));
     }
-    assert_eq!(results[0].len(), 2 + 6);
+    // manifest, rejects, six takes and two completion records.
+    assert_eq!(results[0].len(), 2 + 6 + 2);
     assert!(
         results[0] == results[1],
         "outputs differ between --threads 1 and 2"
@@ -386,4 +387,102 @@ fn check_reports_every_problem_with_line_and_field() {
             .status
             .success()
     );
+}
+
+#[test]
+fn an_interrupted_run_resumed_with_the_same_command_matches_a_clean_run() {
+    let tmp = tempfile::tempdir().unwrap();
+    let manifest = setup_good(tmp.path());
+    let recipe = tmp.path().join("recipe.toml");
+    let run = |out: &Path| {
+        retake(&[
+            "run",
+            recipe.to_str().unwrap(),
+            "-i",
+            manifest.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+        ])
+    };
+    let clean = tmp.path().join("clean");
+    assert!(run(&clean).status.success());
+    // Simulate a crash after clip `a` was finished and while clip `b` was being written:
+    // b's takes and completion record gone, a half-written temporary file, no manifest.
+    let out = tmp.path().join("crashed");
+    assert!(run(&out).status.success());
+    for k in 0..3 {
+        std::fs::remove_file(out.join(format!("takes/b.t{k}.wav"))).unwrap();
+    }
+    std::fs::remove_file(out.join(".done/b.json")).unwrap();
+    std::fs::write(out.join("takes/b.t0.wav.part"), b"RIFF half").unwrap();
+    std::fs::remove_file(out.join("manifest.jsonl")).unwrap();
+    let o = run(&out);
+    assert!(o.status.success());
+    let stdout = String::from_utf8_lossy(&o.stdout);
+    assert!(stdout.contains("resumed 1 clips"), "{stdout}");
+    let (got, want) = (files_under(&out), files_under(&clean));
+    let names = |v: &[(String, Vec<u8>)]| v.iter().map(|f| f.0.clone()).collect::<Vec<_>>();
+    assert_eq!(names(&got), names(&want));
+    for (g, w) in got.iter().zip(&want) {
+        assert!(g.1 == w.1, "{} differs after resuming", g.0);
+    }
+    // A changed recipe makes the records stale: everything is made again.
+    std::fs::write(&recipe, RECIPE.replace("seed = 11", "seed = 12")).unwrap();
+    let o = run(&out);
+    assert!(!String::from_utf8_lossy(&o.stdout).contains("resumed"));
+    assert!(files_under(&out) != files_under(&clean));
+}
+
+#[test]
+fn channels_option_picks_a_channel() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path();
+    setup_good(dir);
+    // Left channel silent, right channel bursts.
+    let spec = hound::WavSpec {
+        channels: 2,
+        sample_rate: 16000,
+        bits_per_sample: 16,
+        sample_format: hound::SampleFormat::Int,
+    };
+    let mut w = hound::WavWriter::create(dir.join("st.wav"), spec).unwrap();
+    for s in bursts(16000, 2.0) {
+        w.write_sample(0i16).unwrap();
+        w.write_sample((s * 32767.0) as i16).unwrap();
+    }
+    w.finalize().unwrap();
+    let manifest = dir.join("st.jsonl");
+    std::fs::write(&manifest, line("st", "st.wav", WORDS) + "\n").unwrap();
+    std::fs::write(dir.join("one.toml"), "takes = 1\n").unwrap();
+    let peak = |channels: &str| {
+        let out = dir.join(format!("out-{channels}"));
+        let o = retake(&[
+            "run",
+            dir.join("one.toml").to_str().unwrap(),
+            "-i",
+            manifest.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+            "--channels",
+            channels,
+        ]);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        let mut r = hound::WavReader::open(out.join("takes/st.t0.wav")).unwrap();
+        r.samples::<i16>()
+            .map(|s| s.unwrap().unsigned_abs())
+            .max()
+            .unwrap()
+    };
+    assert_eq!(peak("0"), 0);
+    let right = peak("1");
+    let mixed = peak("mix");
+    assert!(right > 16000, "{right}");
+    // The mix is the mean of the channels: half the right channel's peak.
+    assert!(
+        (f64::from(mixed) - f64::from(right) / 2.0).abs() <= 1.0,
+        "{mixed} vs {right}"
+    );
+    let o = retake(&["run", "x.toml", "-i", "x", "-o", "y", "--channels", "left"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("expected `mix` or a channel number"));
 }

@@ -7,6 +7,7 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
+use retake::audio::ChannelPolicy;
 
 /// Exit status when the run finished but some clips went to the rejects file.
 pub const EXIT_REJECTS: u8 = 3;
@@ -34,6 +35,10 @@ enum Command {
         /// Worker threads (default: one per core).
         #[arg(long, short = 'j')]
         threads: Option<usize>,
+        /// Multichannel input: `mix` (mean of channels) or a channel number from 0.
+        /// Overrides the recipe's `channels`.
+        #[arg(long, value_parser = parse_channels)]
+        channels: Option<ChannelPolicy>,
     },
     /// Validate a manifest and its audio; one message per problem.
     Check {
@@ -60,7 +65,8 @@ pub fn main() -> ExitCode {
             input,
             out,
             threads,
-        } => run::run(&recipe, &input, &out, threads),
+            channels,
+        } => run::run(&recipe, &input, &out, threads, channels),
         Command::Check { manifest } => check::check(&manifest),
         Command::Demo { out, threads } => {
             let demo = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo_audio");
@@ -69,7 +75,17 @@ pub fn main() -> ExitCode {
                 &demo.join("manifest.jsonl"),
                 &out,
                 threads,
+                None,
             )
         }
     }
+}
+
+fn parse_channels(s: &str) -> Result<ChannelPolicy, String> {
+    if s == "mix" {
+        return Ok(ChannelPolicy::Mix);
+    }
+    s.parse::<usize>()
+        .map(ChannelPolicy::Pick)
+        .map_err(|_| format!("`{s}`: expected `mix` or a channel number counted from 0"))
 }

@@ -4,17 +4,27 @@ use std::path::Path;
 use std::process::ExitCode;
 
 use indicatif::{ProgressBar, ProgressStyle};
+use retake::audio::ChannelPolicy;
 use retake::recipe;
 use retake::run::{self, Event, REJECTS_NAME, RunSpec, Summary};
 
-pub fn run(recipe_path: &Path, input: &Path, out: &Path, threads: Option<usize>) -> ExitCode {
-    let plan = match recipe::load(recipe_path) {
+pub fn run(
+    recipe_path: &Path,
+    input: &Path,
+    out: &Path,
+    threads: Option<usize>,
+    channels: Option<ChannelPolicy>,
+) -> ExitCode {
+    let mut plan = match recipe::load(recipe_path) {
         Ok(p) => p,
         Err(e) => {
             eprintln!("retake: recipe error: {e}");
             return ExitCode::from(2);
         }
     };
+    if let Some(c) = channels {
+        plan.channels = c;
+    }
     // Hidden when stderr is not a terminal, so piped and logged runs stay clean.
     let bar = ProgressBar::new(0);
     bar.set_style(
@@ -69,6 +79,12 @@ fn print_summary(s: &Summary, out: &Path) {
         "clips   {} read, {} done, {} rejected",
         s.clips_in, s.clips_done, s.rejected
     );
+    if s.clips_resumed > 0 {
+        println!(
+            "resumed {} clips were already finished by an earlier run of this recipe and kept",
+            s.clips_resumed
+        );
+    }
     println!("takes   {} written", s.takes);
     println!(
         "audio   {:.3} h in, {:.3} h out ({:.1} s in, {:.1} s out)",
