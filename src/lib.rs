@@ -7,6 +7,23 @@
 //! [`timemap::TimeMap`]s, rewrites the transcript once, and writes takes plus a manifest.
 //!
 //! The library never prints and never exits; the binary in `src/main.rs` does both.
+//!
+//! ```
+//! use std::path::Path;
+//! use retake::timemap::TimeMap;
+//!
+//! // A recipe is checked whole before any audio is read.
+//! let plan = retake::recipe::parse(
+//!     Path::new("speed.toml"),
+//!     "takes = 3\nkeep_source = true\n[[step]]\ndo = \"speed\"\nfactor = [0.9, 1.1]\n",
+//! )?;
+//! assert_eq!((plan.takes, plan.rate, plan.steps.len()), (3, 16_000, 1));
+//!
+//! // Speed perturbation by 1.1 of a 2.2 s clip: every timing t becomes t / 1.1.
+//! let speed = TimeMap::linear(2.2, 2.0);
+//! assert!((speed.apply(1.1) - 1.0).abs() < 1e-12);
+//! # Ok::<(), retake::recipe::RecipeError>(())
+//! ```
 #![deny(missing_docs)]
 
 pub mod audio;
