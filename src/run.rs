@@ -17,7 +17,7 @@ use crate::audio::{self, Audio};
 use crate::dsp::resample::resample;
 use crate::recipe::Plan;
 use crate::seed::{TakeRng, step_seed, take_seed};
-use crate::steps::TakeContext;
+use crate::steps::{TakeContext, run_step};
 use crate::timemap::TimeMap;
 use crate::transcript::{
     self, Clip, Entry, Manifest, Origin, Problem, StepRecord, read_manifest, remap_lines, validate,
@@ -400,9 +400,7 @@ fn make_take(
         };
         if !untouched && rng.chance(planned.chance) {
             let take = TakeContext { lines: &lines_now };
-            let done = planned
-                .step
-                .apply(audio, &take, &mut rng)
+            let done = run_step(planned.step.as_ref(), audio, &take, &mut rng)
                 .map_err(|e| (format!("step {} ({})", i + 1, e.step), e.reason))?;
             audio = done.audio;
             map = map.then(&done.map);

@@ -41,16 +41,6 @@ pub struct StepError {
     pub reason: String,
 }
 
-impl StepError {
-    /// The take has no samples, so no time map can describe it.
-    pub fn empty_take(step: &'static str) -> Self {
-        StepError {
-            step,
-            reason: "the take is empty".into(),
-        }
-    }
-}
-
 /// What a step may know about the take besides its audio.
 #[derive(Debug, Clone, Copy, Default)]
 pub struct TakeContext<'a> {
@@ -71,7 +61,8 @@ pub trait Step: Send + Sync + std::fmt::Debug {
     /// The name used in recipes (`do = "..."`) and in take records.
     fn name(&self) -> &'static str;
 
-    /// Process one take. `audio` is at the plan's rate and so must the result be.
+    /// Process one take. `audio` is at the plan's rate and so must the result be; it is
+    /// never empty when called through [`run_step`].
     ///
     /// # Errors
     /// When the take cannot be processed; the clip is rejected with the reason.
@@ -81,6 +72,26 @@ pub trait Step: Send + Sync + std::fmt::Debug {
         take: &TakeContext<'_>,
         rng: &mut TakeRng,
     ) -> Result<StepOutput, StepError>;
+}
+
+/// Run one step on a take. The one place that refuses an empty take (no time map can
+/// describe a take of zero length), so steps need not check.
+///
+/// # Errors
+/// An empty take, or the step's own error.
+pub fn run_step(
+    step: &dyn Step,
+    audio: Audio,
+    take: &TakeContext<'_>,
+    rng: &mut TakeRng,
+) -> Result<StepOutput, StepError> {
+    if audio.samples.is_empty() {
+        return Err(StepError {
+            step: step.name(),
+            reason: "the take is empty".into(),
+        });
+    }
+    step.apply(audio, take, rng)
 }
 
 /// Reads a step's keys from its `[[step]]` table.
