@@ -1,0 +1,1 @@
+//! Describing a bank (to be written).
