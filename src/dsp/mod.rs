@@ -2,4 +2,5 @@
 
 pub mod active_level;
 pub mod level;
+pub mod mix;
 pub mod resample;
