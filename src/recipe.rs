@@ -115,6 +115,9 @@ pub struct Plan {
     pub channels: ChannelPolicy,
     /// The steps, in order.
     pub steps: Vec<PlannedStep>,
+    /// Things worth knowing that do not stop the run (e.g. noise files left out), each
+    /// starting with the file and line.
+    pub warnings: Vec<String>,
     /// A stable hash of the recipe text; with the fields above it tells whether finished
     /// work in an output folder was made by this same plan (see [`Plan::fingerprint`]).
     pub text_hash: u64,
@@ -146,6 +149,7 @@ pub struct Params<'a> {
     table: &'a DeTable<'a>,
     table_line: usize,
     taken: BTreeSet<String>,
+    warnings: Vec<String>,
 }
 
 struct Ctx<'a> {
@@ -253,6 +257,100 @@ impl<'a> Params<'a> {
             None => Ok(default),
             Some(v) => number(v.get_ref()).map_err(|m| self.error(key, m)),
         }
+    }
+
+    /// A string under `key`, if present.
+    ///
+    /// # Errors
+    /// A value that is not a string.
+    pub fn text(&mut self, key: &str) -> Result<Option<String>, RecipeError> {
+        match self.take(key) {
+            None => Ok(None),
+            Some(v) => match v.get_ref().as_str() {
+                Some(t) => Ok(Some(t.to_string())),
+                None => Err(self.error(
+                    key,
+                    format!("expected a string, found a {}", v.get_ref().type_str()),
+                )),
+            },
+        }
+    }
+
+    /// One of `allowed` under `key`, or `default` when absent.
+    ///
+    /// # Errors
+    /// A value that is not one of `allowed`.
+    pub fn choice(
+        &mut self,
+        key: &str,
+        allowed: &[&'static str],
+        default: &'static str,
+    ) -> Result<&'static str, RecipeError> {
+        let Some(given) = self.text(key)? else {
+            return Ok(default);
+        };
+        allowed
+            .iter()
+            .find(|a| **a == given)
+            .copied()
+            .ok_or_else(|| {
+                let list: Vec<String> = allowed.iter().map(|a| format!("\"{a}\"")).collect();
+                self.error(
+                    key,
+                    format!("\"{given}\" is not one of {}", list.join(", ")),
+                )
+            })
+    }
+
+    /// A boolean under `key`, or `default` when absent.
+    ///
+    /// # Errors
+    /// A value that is not `true` or `false`.
+    pub fn flag(&mut self, key: &str, default: bool) -> Result<bool, RecipeError> {
+        match self.take(key) {
+            None => Ok(default),
+            Some(v) => v
+                .get_ref()
+                .as_bool()
+                .ok_or_else(|| self.error(key, "expected true or false")),
+        }
+    }
+
+    /// A table of positive weights under `key` (`{ name = weight, ... }`), in file order.
+    ///
+    /// # Errors
+    /// A value that is not a table of numbers, or a weight that is zero or negative.
+    pub fn weights(&mut self, key: &str) -> Result<Option<Vec<(String, f64)>>, RecipeError> {
+        let Some(v) = self.take(key) else {
+            return Ok(None);
+        };
+        let Some(table) = v.get_ref().as_table() else {
+            return Err(self.error(key, "expected a table like { name = 2.0, other = 1.0 }"));
+        };
+        let mut out = Vec::new();
+        for (k, x) in table.iter() {
+            let name = k.get_ref().to_string();
+            let w = number(x.get_ref()).map_err(|m| self.error(key, format!("{name}: {m}")))?;
+            if w <= 0.0 {
+                return Err(self.error(
+                    key,
+                    format!(
+                        "{name}: weight {w} must be above 0 (leave the entry out to not use it)"
+                    ),
+                ));
+            }
+            out.push((name, w));
+        }
+        if out.is_empty() {
+            return Err(self.error(key, "an empty table gives nothing to choose from"));
+        }
+        Ok(Some(out))
+    }
+
+    /// Note something worth knowing that does not stop the run.
+    pub fn warn(&mut self, key: &str, message: impl std::fmt::Display) {
+        let e = self.error(key, message);
+        self.warnings.push(e.to_string());
     }
 
     /// Report keys that no parser took.
@@ -459,6 +557,12 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
         },
     };
     let mut planned = Vec::new();
+    let mut warnings = Vec::new();
+    let recipe_dir = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+        _ => PathBuf::from("."),
+    };
+    let banks = crate::steps::noise::BankCache::default();
     if let Some((line, v)) = at("step") {
         let Some(items) = v.get_ref().as_array() else {
             return Err(ctx.err(Some(line), "step: expected [[step]] tables".into()));
@@ -505,6 +609,7 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
                 table,
                 table_line: item_line,
                 taken: BTreeSet::new(),
+                warnings: Vec::new(),
             };
             let chance = match params.find("chance") {
                 None => 1.0,
@@ -516,7 +621,15 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
                     c
                 }
             };
-            let step = parser(&mut params, &steps::PlanContext { rate })?;
+            let step = parser(
+                &mut params,
+                &steps::PlanContext {
+                    rate,
+                    recipe_dir: &recipe_dir,
+                    banks: &banks,
+                },
+            )?;
+            warnings.append(&mut params.warnings);
             params.finish()?;
             planned.push(PlannedStep { step, chance });
         }
@@ -530,6 +643,7 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
         channels,
         steps: planned,
         text_hash: crate::seed::stable_hash(&[text.as_bytes()]),
+        warnings,
     })
 }
 

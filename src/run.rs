@@ -13,7 +13,7 @@ use std::time::Instant;
 use rayon::prelude::*;
 use serde::Serialize;
 
-use crate::audio::{self, Audio};
+use crate::audio::{self, Audio, SampleFormat};
 use crate::dsp::resample::resample;
 use crate::recipe::Plan;
 use crate::seed::{TakeRng, step_seed, take_seed};
@@ -23,6 +23,7 @@ use crate::transcript::{
     self, Clip, Entry, Manifest, Origin, Problem, StepRecord, read_manifest, remap_lines, validate,
     write_manifest,
 };
+use serde_json::Value;
 
 /// Name of the output manifest inside the output folder.
 pub const MANIFEST_NAME: &str = "manifest.jsonl";
@@ -262,7 +263,15 @@ fn clip_fingerprint(plan: &Plan, clip: &Clip, audio_path: &Path) -> String {
 fn finished_earlier(record: &Path, fingerprint: &str, out: &Path) -> Option<ClipResult> {
     let text = std::fs::read_to_string(record).ok()?;
     let mut done: ClipResult = serde_json::from_str(&text).ok()?;
-    if done.fingerprint != fingerprint || !done.takes.iter().all(|t| out.join(&t.audio).is_file()) {
+    let files = done.takes.iter().flat_map(|t| {
+        let stems = t
+            .origin
+            .iter()
+            .flat_map(|o| &o.steps)
+            .flat_map(|s| s.stems.values());
+        std::iter::once(t.audio.as_str()).chain(stems.filter_map(Value::as_str))
+    });
+    if done.fingerprint != fingerprint || !files.into_iter().all(|f| out.join(f).is_file()) {
         return None;
     }
     done.resumed = true;
@@ -325,16 +334,18 @@ fn process_clip(
     let mut takes = Vec::with_capacity(plan.takes as usize);
     let outcome = (0..plan.takes).try_for_each(|k| {
         let rel = format!("{TAKES_DIR}/{stem}.t{k}.wav");
-        let take = make_take(plan, clip, &base, k, source_rate)
+        let take = make_take(plan, clip, &base, k, source_rate, &stem)
             .map_err(|(field, reason)| reject(&field, reason))?;
-        let dest = out.join(&rel);
-        let tmp = out.join(format!("{rel}.part"));
-        audio::write_wav(&tmp, &take.audio, plan.format).map_err(|e| {
-            let _ = std::fs::remove_file(&tmp);
-            reject("", e.to_string())
-        })?;
-        std::fs::rename(&tmp, &dest).map_err(|e| reject("", format!("{}: {e}", dest.display())))?;
-        written.push(dest);
+        // Stems are float so that levels recomputed from them match what was measured.
+        let files = std::iter::once((&rel, &take.audio, plan.format)).chain(
+            take.stems
+                .iter()
+                .map(|(r, a)| (r, a, SampleFormat::Float32)),
+        );
+        for (rel, signal, format) in files {
+            let dest = write_wav_atomically(out, rel, signal, format).map_err(|e| reject("", e))?;
+            written.push(dest);
+        }
         takes.push(Clip {
             id: format!("{}.t{k}", clip.id),
             audio: rel,
@@ -368,6 +379,8 @@ fn process_clip(
 struct Take {
     audio: Audio,
     clip: Clip,
+    /// Extra signals a step asked to write: (path relative to the output folder, audio).
+    stems: Vec<(String, Audio)>,
 }
 
 /// One take: run the steps with their own streams, compose the maps, rewrite the labels.
@@ -377,6 +390,7 @@ fn make_take(
     base: &Audio,
     k: u32,
     source_rate: u32,
+    stem: &str,
 ) -> Result<Take, (String, String)> {
     let seed = take_seed(plan.seed, &clip.id, k);
     let mut audio = base.clone();
@@ -389,7 +403,14 @@ fn make_take(
         .flatten()
         .map(|l| (l.start, l.end))
         .collect();
-    let mut lines_now = source_lines.clone();
+    let source_words: Vec<(f64, f64)> = clip
+        .lines
+        .iter()
+        .flatten()
+        .flat_map(|l| l.words.iter().map(|w| (w.start, w.end)))
+        .collect();
+    let (mut lines_now, mut words_now) = (source_lines.clone(), source_words.clone());
+    let mut stems = Vec::new();
     for (i, planned) in plan.steps.iter().enumerate() {
         let mut rng = TakeRng::new(step_seed(seed, i));
         let mut record = StepRecord {
@@ -397,24 +418,41 @@ fn make_take(
             ran: false,
             drawn: Default::default(),
             measured: Default::default(),
+            note: None,
+            stems: Default::default(),
         };
         if !untouched && rng.chance(planned.chance) {
-            let take = TakeContext { lines: &lines_now };
+            let take = TakeContext {
+                lines: &lines_now,
+                words: &words_now,
+            };
             let done = run_step(planned.step.as_ref(), audio, &take, &mut rng)
                 .map_err(|e| (format!("step {} ({})", i + 1, e.step), e.reason))?;
             audio = done.audio;
             map = map.then(&done.map);
             let end = audio.duration();
-            lines_now = source_lines
-                .iter()
-                .map(|&(a, b)| {
-                    let (a, b) = map.apply_span(a, b);
-                    (a.min(end), b.min(end))
-                })
-                .collect();
-            record.ran = true;
+            let now = |spans: &[(f64, f64)]| -> Vec<(f64, f64)> {
+                spans
+                    .iter()
+                    .map(|&(a, b)| {
+                        let (a, b) = map.apply_span(a, b);
+                        (a.min(end), b.min(end))
+                    })
+                    .collect()
+            };
+            lines_now = now(&source_lines);
+            words_now = now(&source_words);
+            record.ran = done.skipped.is_none();
+            record.note = done.skipped;
             record.drawn = done.drawn;
             record.measured = done.measured;
+            for (name, signal) in done.stems {
+                let rel = format!("{TAKES_DIR}/{stem}.t{k}.s{}-{name}.wav", i + 1);
+                record
+                    .stems
+                    .insert(name.to_string(), Value::from(rel.clone()));
+                stems.push((rel, signal));
+            }
         }
         records.push(record);
     }
@@ -451,7 +489,11 @@ fn make_take(
             format!("take {k}: rewritten label is invalid: {reason}"),
         ));
     }
-    Ok(Take { audio, clip: out })
+    Ok(Take {
+        audio,
+        clip: out,
+        stems,
+    })
 }
 
 /// A file name for a clip id: the id itself when it is plain, else a cleaned id plus a
@@ -476,6 +518,23 @@ fn file_stem(id: &str) -> String {
             take_seed(0, id, 0) as u32
         )
     }
+}
+
+/// Write audio to `out/rel` under a temporary name, then rename it into place.
+fn write_wav_atomically(
+    out: &Path,
+    rel: &str,
+    signal: &Audio,
+    format: SampleFormat,
+) -> Result<PathBuf, String> {
+    let dest = out.join(rel);
+    let tmp = out.join(format!("{rel}.part"));
+    audio::write_wav(&tmp, signal, format).map_err(|e| {
+        let _ = std::fs::remove_file(&tmp);
+        e.to_string()
+    })?;
+    std::fs::rename(&tmp, &dest).map_err(|e| format!("{}: {e}", dest.display()))?;
+    Ok(dest)
 }
 
 /// Write a file under a temporary name, then rename it into place.

@@ -63,6 +63,13 @@ pub struct StepRecord {
     /// Values measured on the result.
     #[serde(default, skip_serializing_if = "Map::is_empty")]
     pub measured: Map<String, Value>,
+    /// Why a step that was due left the take unchanged (e.g. silent speech for a noise step).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub note: Option<String>,
+    /// Extra files the step wrote next to the take, by name (paths relative to the output
+    /// manifest's folder), e.g. `clean` and `noise` stems of a mix.
+    #[serde(default, skip_serializing_if = "Map::is_empty")]
+    pub stems: Map<String, Value>,
 }
 
 /// Where a take came from: enough to explain and reproduce it.

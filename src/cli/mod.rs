@@ -1,5 +1,6 @@
 //! Command-line front end: parse, call the library, print. No signal processing here.
 
+mod bank;
 mod check;
 mod run;
 
@@ -45,6 +46,26 @@ enum Command {
         /// The manifest to check.
         manifest: PathBuf,
     },
+    /// Describe a noise bank: per file its part, length, level, centroid and steadiness.
+    Bank {
+        /// The bank folder (first-level subfolders are categories).
+        dir: PathBuf,
+        /// Sample rate the files are brought to, Hz.
+        #[arg(
+            long,
+            default_value_t = 16_000,
+            value_parser = clap::value_parser!(u32).range(1..)
+        )]
+        rate: u32,
+        /// Fraction of the files set aside as the held-out part, from 0 to 1.
+        #[arg(
+            long = "held-out",
+            value_name = "FRACTION",
+            default_value_t = 0.0,
+            value_parser = parse_fraction
+        )]
+        held_out: f64,
+    },
     /// Run the bundled recipe on the bundled demo clips (a cold-store warehouse).
     Demo {
         /// Output folder.
@@ -68,6 +89,11 @@ pub fn main() -> ExitCode {
             channels,
         } => run::run(&recipe, &input, &out, threads, channels),
         Command::Check { manifest } => check::check(&manifest),
+        Command::Bank {
+            dir,
+            rate,
+            held_out,
+        } => bank::bank(&dir, rate, held_out),
         Command::Demo { out, threads } => {
             let demo = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo_audio");
             run::run(
@@ -88,4 +114,11 @@ fn parse_channels(s: &str) -> Result<ChannelPolicy, String> {
     s.parse::<usize>()
         .map(ChannelPolicy::Pick)
         .map_err(|_| format!("`{s}`: expected `mix` or a channel number counted from 0"))
+}
+
+fn parse_fraction(s: &str) -> Result<f64, String> {
+    match s.parse::<f64>() {
+        Ok(f) if (0.0..=1.0).contains(&f) => Ok(f),
+        _ => Err(format!("`{s}`: expected a fraction from 0 to 1")),
+    }
 }

@@ -25,6 +25,9 @@ pub fn run(
     if let Some(c) = channels {
         plan.channels = c;
     }
+    for w in &plan.warnings {
+        eprintln!("retake: warning: {w}");
+    }
     // Hidden when stderr is not a terminal, so piped and logged runs stay clean.
     let bar = ProgressBar::new(0);
     bar.set_style(

@@ -2,7 +2,7 @@
 //! take's peak would pass the ceiling; then the gain is lowered so the peak sits at the
 //! ceiling. Timings do not move.
 
-use serde_json::{Map, Value};
+use serde_json::Value;
 
 use crate::audio::Audio;
 use crate::dsp::level::{amplitude_db, db_to_amplitude, peak};
@@ -31,7 +31,7 @@ pub struct Gain {
 ///
 /// # Errors
 /// A missing gain, a gain that can be drawn outside the limits, a ceiling above 0 dBFS.
-pub fn parse(params: &mut Params<'_>, ctx: &PlanContext) -> Result<Box<dyn Step>, RecipeError> {
+pub fn parse(params: &mut Params<'_>, ctx: &PlanContext<'_>) -> Result<Box<dyn Step>, RecipeError> {
     let _ = ctx;
     let db = params.draw_within("db", None, DB_LIMITS, "dB")?;
     let ceiling_db = params.number("ceiling_db", DEFAULT_CEILING_DB)?;
@@ -72,21 +72,20 @@ impl Step for Gain {
             scale(&source, factor, &mut samples);
         }
         let after = peak(&samples);
-        let mut drawn = Map::new();
-        drawn.insert("db".into(), Value::from(db));
-        let mut measured = Map::new();
-        measured.insert("applied_db".into(), Value::from(amplitude_db(factor)));
-        // A silent take has no peak level: recorded as null.
-        measured.insert("peak_dbfs".into(), Value::from(amplitude_db(after)));
-        Ok(StepOutput {
-            audio: Audio {
+        let mut out = StepOutput::new(
+            Audio {
                 rate: audio.rate,
                 samples,
             },
-            map: TimeMap::identity(duration),
-            drawn,
-            measured,
-        })
+            TimeMap::identity(duration),
+        );
+        out.drawn.insert("db".into(), Value::from(db));
+        out.measured
+            .insert("applied_db".into(), Value::from(amplitude_db(factor)));
+        // A silent take has no peak level: recorded as null.
+        out.measured
+            .insert("peak_dbfs".into(), Value::from(amplitude_db(after)));
+        Ok(out)
     }
 }
 

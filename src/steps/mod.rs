@@ -15,6 +15,7 @@ use crate::seed::TakeRng;
 use crate::timemap::TimeMap;
 
 pub mod gain;
+pub mod noise;
 pub mod resample;
 pub mod speed;
 
@@ -29,6 +30,25 @@ pub struct StepOutput {
     pub drawn: Map<String, Value>,
     /// Values measured on the result (what was actually achieved), by name.
     pub measured: Map<String, Value>,
+    /// Extra signals to write next to the take (name, audio), e.g. the clean and noise
+    /// stems of a mix, so anyone can recompute what the step measured.
+    pub stems: Vec<(&'static str, Audio)>,
+    /// Set when the step left the take unchanged on purpose: the reason, recorded.
+    pub skipped: Option<String>,
+}
+
+impl StepOutput {
+    /// A step's result with nothing recorded yet.
+    pub fn new(audio: Audio, map: TimeMap) -> Self {
+        StepOutput {
+            audio,
+            map,
+            drawn: Map::new(),
+            measured: Map::new(),
+            stems: Vec::new(),
+            skipped: None,
+        }
+    }
 }
 
 /// A step could not process a take; the clip goes to the rejects with this reason.
@@ -47,13 +67,19 @@ pub struct TakeContext<'a> {
     /// The timed lines as `(start, end)` in the take's current timeline (all earlier steps'
     /// maps applied), in seconds; empty for an untimed clip.
     pub lines: &'a [(f64, f64)],
+    /// The timed words, likewise; empty when the clip has no word timings.
+    pub words: &'a [(f64, f64)],
 }
 
 /// Facts about the run that step parsers may need to check their parameters.
-#[derive(Debug, Clone, Copy)]
-pub struct PlanContext {
+#[derive(Debug)]
+pub struct PlanContext<'a> {
     /// The output sample rate in Hz; every step receives and returns audio at this rate.
     pub rate: u32,
+    /// The recipe's folder: relative paths in a recipe are relative to it.
+    pub recipe_dir: &'a std::path::Path,
+    /// Noise banks loaded so far by this recipe, so two steps naming one bank share it.
+    pub banks: &'a noise::BankCache,
 }
 
 /// One operation of a recipe.
@@ -95,13 +121,14 @@ pub fn run_step(
 }
 
 /// Reads a step's keys from its `[[step]]` table.
-pub type ParseFn = fn(&mut Params<'_>, &PlanContext) -> Result<Box<dyn Step>, RecipeError>;
+pub type ParseFn = fn(&mut Params<'_>, &PlanContext<'_>) -> Result<Box<dyn Step>, RecipeError>;
 
 /// Every step a recipe can name, with its parser.
 pub const REGISTRY: &[(&str, ParseFn)] = &[
     ("speed", speed::parse),
     ("resample", resample::parse),
     ("gain", gain::parse),
+    ("noise", noise::parse),
 ];
 
 /// The parser for a step name.

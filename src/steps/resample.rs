@@ -1,7 +1,7 @@
 //! The `resample` step: the take passes through another sample rate and back, losing
 //! everything above half that rate (as through a narrow-band link). Timings do not move.
 
-use serde_json::{Map, Value};
+use serde_json::Value;
 
 use crate::audio::Audio;
 use crate::dsp::resample::resample;
@@ -24,7 +24,7 @@ pub struct Resample {
 ///
 /// # Errors
 /// A missing rate, a rate that is not a whole number or one outside the limits.
-pub fn parse(params: &mut Params<'_>, ctx: &PlanContext) -> Result<Box<dyn Step>, RecipeError> {
+pub fn parse(params: &mut Params<'_>, ctx: &PlanContext<'_>) -> Result<Box<dyn Step>, RecipeError> {
     let _ = ctx;
     let (lo, hi) = VIA_RATE_LIMITS;
     let via_rate = params.draw_within("via_rate", None, (f64::from(lo), f64::from(hi)), "Hz")?;
@@ -65,14 +65,9 @@ impl Step for Resample {
                 samples: back,
             }
         };
-        let mut drawn = Map::new();
-        drawn.insert("via_rate".into(), Value::from(via));
-        Ok(StepOutput {
-            audio,
-            map: TimeMap::identity(duration),
-            drawn,
-            measured: Map::new(),
-        })
+        let mut out = StepOutput::new(audio, TimeMap::identity(duration));
+        out.drawn.insert("via_rate".into(), Value::from(via));
+        Ok(out)
     }
 }
 

@@ -1,7 +1,7 @@
 //! The `speed` step: speed perturbation. The take is played `factor` times faster, so it
 //! lasts `d / factor` and its pitch moves with it (a resample that keeps the rate).
 
-use serde_json::{Map, Value};
+use serde_json::Value;
 
 use crate::audio::Audio;
 use crate::dsp::resample;
@@ -24,7 +24,7 @@ pub struct Speed {
 ///
 /// # Errors
 /// A missing factor, or one that can draw a value outside the limits.
-pub fn parse(params: &mut Params<'_>, ctx: &PlanContext) -> Result<Box<dyn Step>, RecipeError> {
+pub fn parse(params: &mut Params<'_>, ctx: &PlanContext<'_>) -> Result<Box<dyn Step>, RecipeError> {
     let _ = ctx;
     let factor = params.draw_within("factor", None, FACTOR_LIMITS, "")?;
     Ok(Box::new(Speed { factor }))
@@ -54,16 +54,10 @@ impl Step for Speed {
         // The written samples fix the take's duration (the output length is rounded to a
         // whole sample); the content itself moves exactly t -> t / factor, and that is the map.
         let d_out = audio.duration();
-        let mut drawn = Map::new();
-        drawn.insert("factor".into(), Value::from(factor));
-        let mut measured = Map::new();
-        measured.insert("duration_s".into(), Value::from(d_out));
-        Ok(StepOutput {
-            audio,
-            map: TimeMap::linear(d_in, d_in / factor),
-            drawn,
-            measured,
-        })
+        let mut out = StepOutput::new(audio, TimeMap::linear(d_in, d_in / factor));
+        out.drawn.insert("factor".into(), Value::from(factor));
+        out.measured.insert("duration_s".into(), Value::from(d_out));
+        Ok(out)
     }
 }
 
