@@ -9,8 +9,10 @@
 //!   sample; a last partial frame is left out (a file shorter than one frame is one frame).
 //! - The spectral centroid is the power-weighted mean frequency of the averaged power
 //!   spectrum: frames of [`FFT_LEN`] samples every [`FFT_HOP`] samples, each multiplied by a
-//!   periodic Hann window `0.5 - 0.5 cos(2 pi n / N)`, power `|X_k|²` averaged over frames,
-//!   then `sum(f_k P_k) / sum(P_k)` over bins `k = 0 ..= N/2` with `f_k = k * rate / N`.
+//!   periodic Hann window `0.5 - 0.5 cos(2 pi n / N)`, power `|X_k|²` averaged over frames
+//!   and made one-sided (bins `0 < k < N/2` doubled, as they also stand for the negative
+//!   frequencies), then `sum(f_k P_k) / sum(P_k)` over bins `k = 0 ..= N/2` with
+//!   `f_k = k * rate / N`.
 //!   A file shorter than one FFT frame is one zero-padded frame; samples after the last
 //!   whole frame are left out (fewer than [`FFT_HOP`]).
 
@@ -306,7 +308,11 @@ impl Spectrum {
                 break;
             }
         }
+        // One-sided: every bin but DC and Nyquist also holds its negative frequency.
         // Averaging over frames scales numerator and denominator alike: the sums suffice.
+        for p in &mut self.power[1..FFT_LEN / 2] {
+            *p *= 2.0;
+        }
         let total: f64 = self.power.iter().sum();
         if total <= 0.0 || !total.is_finite() {
             return None;
