@@ -222,3 +222,265 @@ fn a_hard_loop_of_a_tone_clicks_and_the_crossfaded_one_does_not() {
         max_step(&soft)
     );
 }
+
+fn write_wav(path: &Path, samples: &[f32]) {
+    let spec = hound::WavSpec {
+        channels: 1,
+        sample_rate: 16000,
+        bits_per_sample: 16,
+        sample_format: hound::SampleFormat::Int,
+    };
+    let mut w = hound::WavWriter::create(path, spec).unwrap();
+    for &s in samples {
+        w.write_sample((s * 32767.0).round() as i16).unwrap();
+    }
+    w.finalize().unwrap();
+}
+
+/// A clip of `amp`-level 300 Hz bursts for words at 0.2–0.5 s and 0.8–1.1 s of a 1.5 s
+/// file, with its one-line manifest.
+fn burst_clip(dir: &Path, amp: f64) -> PathBuf {
+    let x: Vec<f32> = (0..24_000)
+        .map(|i| {
+            let t = i as f64 / 16000.0;
+            let on = (0.2..0.5).contains(&t) || (0.8..1.1).contains(&t);
+            if on {
+                (amp * (2.0 * std::f64::consts::PI * 300.0 * t).sin()) as f32
+            } else {
+                0.0
+            }
+        })
+        .collect();
+    write_wav(&dir.join("c.wav"), &x);
+    let m = dir.join("in.jsonl");
+    std::fs::write(
+        &m,
+        r#"{"id":"c","audio":"c.wav","lines":[{"start":0.2,"end":1.1,"text":"bay two","words":[{"start":0.2,"end":0.5,"text":"bay"},{"start":0.8,"end":1.1,"text":"two"}]}]}"#
+            .to_string()
+            + "\n",
+    )
+    .unwrap();
+    m
+}
+
+fn bank_recipe(bank: &Path, extra: &str) -> String {
+    format!(
+        "takes = 4\n[[step]]\ndo = \"noise\"\nbank = \"{}\"\n{extra}\n",
+        bank.display()
+    )
+}
+
+#[test]
+fn loud_mix_is_scaled_down_with_the_snr_kept() {
+    let tmp = tempfile::tempdir().unwrap();
+    let m = burst_clip(tmp.path(), 0.95);
+    let (code, err, takes) = run(
+        tmp.path(),
+        &bank_recipe(&demo().join("noise"), "snr_db = -5\nsnr_over = \"words\""),
+        &m,
+    );
+    assert_eq!(code, Some(0), "{err}");
+    for take in &takes {
+        let rec = &noise_record(take)["measured"];
+        assert!(rec["scaled_db"].as_f64().unwrap() < -1.0, "{rec}");
+        assert!(
+            (rec["snr_db"].as_f64().unwrap() + 5.0).abs() < 0.05,
+            "{rec}"
+        );
+        let mut r =
+            hound::WavReader::open(tmp.path().join("out").join(take["audio"].as_str().unwrap()))
+                .unwrap();
+        let peak = r
+            .samples::<i16>()
+            .map(|s| s.unwrap().unsigned_abs())
+            .max()
+            .unwrap();
+        assert!(peak <= 32767, "{peak}");
+    }
+}
+
+#[test]
+fn silent_speech_is_skipped_or_rejected_as_the_recipe_says() {
+    let tmp = tempfile::tempdir().unwrap();
+    let m = burst_clip(tmp.path(), 0.0);
+    let (code, err, takes) = run(
+        tmp.path(),
+        &bank_recipe(&demo().join("noise"), "snr_db = 10"),
+        &m,
+    );
+    assert_eq!(code, Some(0), "{err}");
+    for take in &takes {
+        let rec = noise_record(take);
+        assert_eq!(rec["ran"], false);
+        assert!(rec["note"].as_str().unwrap().contains("silent"), "{rec}");
+    }
+    let (code, _, takes) = run(
+        tmp.path(),
+        &bank_recipe(
+            &demo().join("noise"),
+            "snr_db = 10\nsilent_speech = \"reject\"",
+        ),
+        &m,
+    );
+    assert_eq!(code, Some(3));
+    assert!(takes.is_empty());
+    let rejects = read_jsonl(&tmp.path().join("out/rejects.jsonl"));
+    assert!(
+        rejects[0]["reason"].as_str().unwrap().contains("silent"),
+        "{}",
+        rejects[0]
+    );
+}
+
+#[test]
+fn held_out_files_never_reach_training_takes() {
+    let tmp = tempfile::tempdir().unwrap();
+    let bank = tmp.path().join("bank");
+    for cat in ["hum", "fan"] {
+        std::fs::create_dir_all(bank.join(cat)).unwrap();
+        for i in 0..10 {
+            let x: Vec<f32> = (0..8000)
+                .map(|k| (0.1 * ((k * (i + 3)) as f32 * 0.01).sin()) as f32)
+                .collect();
+            write_wav(&bank.join(cat).join(format!("n{i}.wav")), &x);
+        }
+    }
+    let m = burst_clip(tmp.path(), 0.3);
+    for part in ["train", "held_out"] {
+        let extra = format!(
+            "snr_db = 10\nheld_out = 0.3\npart = \"{part}\"\nweights = {{ hum = 3, fan = 1 }}"
+        );
+        let recipe = bank_recipe(&bank, &extra).replace("takes = 4", "takes = 60");
+        let (code, err, takes) = run(tmp.path(), &recipe, &m);
+        assert_eq!(code, Some(0), "{err}");
+        let mut hum = 0;
+        for take in &takes {
+            let file = noise_record(take)["drawn"]["file"]
+                .as_str()
+                .unwrap()
+                .to_string();
+            // The split is a stable hash of the path inside the bank (retake::noise::is_held_out).
+            assert_eq!(
+                is_held_out(&file, 0.3),
+                part == "held_out",
+                "{file} in {part} takes"
+            );
+            hum += usize::from(file.starts_with("hum/"));
+        }
+        // Weights 3:1: about 45 of 60 takes use the hum (binomial sd 3.4).
+        assert!((33..=57).contains(&hum), "{hum} hum takes of 60");
+    }
+}
+
+#[test]
+fn two_layers_each_hit_their_own_snr() {
+    let tmp = tempfile::tempdir().unwrap();
+    let m = burst_clip(tmp.path(), 0.3);
+    let noise = demo().join("noise");
+    let recipe = format!(
+        "takes = 3\n[[step]]\ndo = \"noise\"\nbank = \"{0}\"\nweights = {{ compressor = 1 }}\nsnr_db = 25\n[[step]]\ndo = \"noise\"\nbank = \"{0}\"\nweights = {{ beeper = 1 }}\nsnr_db = {{ low = 5, high = 15 }}\nsnr_over = \"active\"\n",
+        noise.display()
+    );
+    let (code, err, takes) = run(tmp.path(), &recipe, &m);
+    assert_eq!(code, Some(0), "{err}");
+    for take in &takes {
+        let steps = take["origin"]["steps"].as_array().unwrap();
+        assert_eq!(steps[0]["drawn"]["category"], "compressor");
+        assert_eq!(steps[1]["drawn"]["category"], "beeper");
+        for s in steps {
+            let (d, got) = (
+                s["drawn"]["snr_db"].as_f64().unwrap(),
+                s["measured"]["snr_db"].as_f64().unwrap(),
+            );
+            assert!((d - got).abs() < 0.05, "{s}");
+        }
+        assert_eq!(steps[1]["measured"]["snr_over"], "active");
+    }
+}
+
+#[test]
+fn bad_banks_and_keys_are_recipe_errors_naming_the_key() {
+    let tmp = tempfile::tempdir().unwrap();
+    let m = burst_clip(tmp.path(), 0.3);
+    let empty = tmp.path().join("empty");
+    std::fs::create_dir_all(&empty).unwrap();
+    let junk = tmp.path().join("junk");
+    std::fs::create_dir_all(&junk).unwrap();
+    std::fs::write(junk.join("a.wav"), b"not audio").unwrap();
+    std::fs::write(junk.join("b.flac"), b"").unwrap();
+    let noise = demo().join("noise");
+    let cases: Vec<(String, &str, &str)> = vec![
+        (
+            bank_recipe(&tmp.path().join("nowhere"), "snr_db = 5"),
+            "bank:",
+            "no such folder",
+        ),
+        (bank_recipe(&empty, "snr_db = 5"), "bank:", "holds no files"),
+        (
+            bank_recipe(&junk, "snr_db = 5"),
+            "bank:",
+            "none of the 2 files can be used",
+        ),
+        (
+            bank_recipe(&noise, "snr_db = \"loud\""),
+            "snr_db:",
+            "expected a number",
+        ),
+        (
+            bank_recipe(&noise, "snr_db = 5\nweights = { fans = 0 }"),
+            "weights:",
+            "must be above 0",
+        ),
+        (
+            bank_recipe(&noise, "snr_db = 5\nweights = { fans = -2 }"),
+            "weights:",
+            "must be above 0",
+        ),
+        (
+            bank_recipe(&noise, "snr_db = 5\nweights = { forklift = 1 }"),
+            "weights:",
+            "no category `forklift`",
+        ),
+        (
+            bank_recipe(&noise, "snr_db = 5\npart = \"held_out\""),
+            "part:",
+            "has no file",
+        ),
+        (
+            bank_recipe(&noise, "snr_db = 5\nsnr_over = \"peak\""),
+            "snr_over:",
+            "is not one of",
+        ),
+        (
+            bank_recipe(&noise, "snr_db = { low = 20, high = 5 }"),
+            "snr_db:",
+            "low 20 is above high 5",
+        ),
+    ];
+    for (recipe, key, says) in cases {
+        let (code, err, _) = run(tmp.path(), &recipe, &m);
+        assert_eq!(code, Some(2), "{recipe}: {err}");
+        assert!(
+            err.contains("recipe.toml line ") && err.contains(&format!("step 1 (noise): {key}")),
+            "{err}"
+        );
+        assert!(err.contains(says), "want `{says}`: {err}");
+    }
+    // A zero-length file among good ones: a warning, and the run goes on without it.
+    let mixed = tmp.path().join("mixed");
+    std::fs::create_dir_all(&mixed).unwrap();
+    std::fs::copy(
+        noise.join("fans/evaporator-fans-chamber2.wav"),
+        mixed.join("fan.wav"),
+    )
+    .unwrap();
+    write_wav(&mixed.join("zero.wav"), &[]);
+    let (code, err, takes) = run(tmp.path(), &bank_recipe(&mixed, "snr_db = 5"), &m);
+    assert_eq!(code, Some(0), "{err}");
+    assert!(err.contains("warning") && err.contains("zero.wav"), "{err}");
+    assert!(
+        takes
+            .iter()
+            .all(|t| noise_record(t)["drawn"]["file"] == "fan.wav")
+    );
+}
