@@ -33,10 +33,18 @@ const OFFSET_TRIES: usize = 8;
 /// The mix never passes this peak (full scale).
 const FULL_SCALE: f64 = 1.0;
 
-/// Banks loaded while one recipe is parsed, keyed by folder and held-out fraction, so two
-/// layers naming the same bank decode it once.
+/// Banks loaded while one recipe is parsed, so two layers naming the same bank (with the
+/// same held-out fraction) decode it once.
 #[derive(Debug, Default)]
-pub struct BankCache(RefCell<Vec<(PathBuf, u64, u32, Arc<NoiseBank>)>>);
+pub struct BankCache(RefCell<Vec<CachedBank>>);
+
+#[derive(Debug)]
+struct CachedBank {
+    root: PathBuf,
+    held_out_bits: u64,
+    rate: u32,
+    bank: Arc<NoiseBank>,
+}
 
 impl BankCache {
     fn get(
@@ -45,19 +53,23 @@ impl BankCache {
         rate: u32,
         held_out: f64,
     ) -> Result<Arc<NoiseBank>, BankError> {
-        let key = (root.to_path_buf(), held_out.to_bits(), rate);
-        if let Some(hit) = self
+        let held_out_bits = held_out.to_bits();
+        let hit = self
             .0
             .borrow()
             .iter()
-            .find(|(p, f, r, _)| (p, *f, *r) == (&key.0, key.1, key.2))
-        {
-            return Ok(hit.3.clone());
+            .find(|c| c.root == root && c.held_out_bits == held_out_bits && c.rate == rate)
+            .map(|c| c.bank.clone());
+        if let Some(bank) = hit {
+            return Ok(bank);
         }
         let bank = Arc::new(load_bank(root, rate, held_out)?);
-        self.0
-            .borrow_mut()
-            .push((key.0, key.1, key.2, bank.clone()));
+        self.0.borrow_mut().push(CachedBank {
+            root: root.to_path_buf(),
+            held_out_bits,
+            rate,
+            bank: bank.clone(),
+        });
         Ok(bank)
     }
 }
