@@ -340,7 +340,7 @@ fn held_out_files_never_reach_training_takes() {
         std::fs::create_dir_all(bank.join(cat)).unwrap();
         for i in 0..10 {
             let x: Vec<f32> = (0..8000)
-                .map(|k| (0.1 * ((k * (i + 3)) as f32 * 0.01).sin()) as f32)
+                .map(|k| 0.1 * ((k * (i + 3)) as f32 * 0.01).sin())
                 .collect();
             write_wav(&bank.join(cat).join(format!("n{i}.wav")), &x);
         }
