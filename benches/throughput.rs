@@ -1,4 +1,4 @@
-//! Throughput of resampling and speed perturbation, in seconds of audio per second of wall
+//! Throughput of resampling, speed perturbation and the noise step, in seconds of audio per second of wall
 //! time, on one core and on all cores. Run with `cargo bench --bench throughput`.
 //!
 //! Each figure is the median of seven passes over 200 clips of 5 s (20 distinct clips of
@@ -9,7 +9,10 @@
 use std::time::Instant;
 
 use rayon::prelude::*;
+use retake::audio::Audio;
 use retake::dsp::resample::{resample, speed};
+use retake::seed::TakeRng;
+use retake::steps::{TakeContext, run_step};
 
 const CLIPS: usize = 200;
 const DISTINCT: usize = 20;
@@ -17,7 +20,7 @@ const SECONDS: f64 = 5.0;
 const PASSES: usize = 7;
 
 /// The work done on one clip (its index and samples).
-type Work = dyn Fn(usize, &[f32]) + Sync;
+type Work<'a> = dyn Fn(usize, &[f32]) + Sync + 'a;
 
 /// Distinct noise clips at `rate` (a fixed LCG, so every run measures the same data).
 fn clips(rate: u32) -> Vec<Vec<f32>> {
@@ -44,7 +47,7 @@ fn drawn(i: usize) -> f64 {
 }
 
 /// Median audio seconds per wall second of `work` over every clip, in `pool`.
-fn measure(pool: &rayon::ThreadPool, clips: &[Vec<f32>], work: &Work) -> f64 {
+fn measure(pool: &rayon::ThreadPool, clips: &[Vec<f32>], work: &Work<'_>) -> f64 {
     let run = || {
         pool.install(|| {
             (0..CLIPS)
@@ -79,7 +82,28 @@ fn main() {
     });
     let at_44k = clips(44_100);
     let at_16k = clips(16_000);
-    let cases: [(&str, &[Vec<f32>], &Work); 4] = [
+    // The noise step as a recipe makes it: the demo bank decoded once, a line over most of
+    // each clip, SNR drawn per take.
+    let noise_plan = retake::recipe::parse(
+        &std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("bench.toml"),
+        "takes = 1\n[[step]]\ndo = \"noise\"\nbank = \"demo_audio/noise\"\nsnr_db = { low = 0, high = 20 }\n",
+    )
+    .expect("noise recipe");
+    let noise_step = noise_plan.steps[0].step.as_ref();
+    let lines = [(0.2, SECONDS - 0.2)];
+    let noise_work = |i: usize, x: &[f32]| {
+        let take = TakeContext {
+            lines: &lines,
+            words: &[],
+        };
+        let audio = Audio {
+            rate: 16_000,
+            samples: x.to_vec(),
+        };
+        let out = run_step(noise_step, audio, &take, &mut TakeRng::new(i as u64));
+        std::hint::black_box(out.expect("noise step"));
+    };
+    let cases: [(&str, &[Vec<f32>], &Work<'_>); 5] = [
         ("resample 44.1 kHz -> 16 kHz", &at_44k, &|_, x| {
             std::hint::black_box(resample(x, 44_100, 16_000));
         }),
@@ -92,6 +116,7 @@ fn main() {
         ("speed drawn from [0.9, 1.1]", &at_16k, &|i, x| {
             std::hint::black_box(speed(x, drawn(i)));
         }),
+        ("noise at a drawn SNR over lines", &at_16k, &noise_work),
     ];
     for (name, data, work) in cases {
         for (label, pool) in &pools {
