@@ -31,6 +31,7 @@ pub mod check;
 pub mod dsp;
 pub mod noise;
 pub mod recipe;
+pub mod room;
 pub mod run;
 pub mod seed;
 pub mod steps;
