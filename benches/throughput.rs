@@ -124,4 +124,36 @@ fn main() {
             println!("{name}, {label}: {rate:.0} s of audio per second");
         }
     }
+
+    // Convolution of each 16 kHz clip with a room response: noise under an envelope that
+    // falls 60 dB over the response's length, from its own fixed LCG.
+    let response = |secs: f64| -> Vec<f32> {
+        let n = (secs * 16_000.0) as usize;
+        let mut state: u64 = 0x9e37_79b9_7f4a_7c15;
+        (0..n)
+            .map(|i| {
+                state = state
+                    .wrapping_mul(6_364_136_223_846_793_005)
+                    .wrapping_add(1_442_695_040_888_963_407);
+                let u = (state >> 40) as f32 / (1u64 << 24) as f32 - 0.5;
+                u * (-6.907_755 * i as f32 / n as f32).exp()
+            })
+            .collect()
+    };
+    let (short_room, long_room) = (response(0.3), response(1.0));
+    use retake::dsp::convolve::convolve;
+    let convolution: [(&str, &[Vec<f32>], &Work<'_>); 2] = [
+        ("convolve with a 0.3 s response", &at_16k, &|_, x| {
+            std::hint::black_box(convolve(x, &short_room));
+        }),
+        ("convolve with a 1.0 s response", &at_16k, &|_, x| {
+            std::hint::black_box(convolve(x, &long_room));
+        }),
+    ];
+    for (name, data, work) in convolution {
+        for (label, pool) in &pools {
+            let rate = measure(pool, data, work);
+            println!("{name}, {label}: {rate:.0} s of audio per second");
+        }
+    }
 }

@@ -1,6 +1,8 @@
 //! Signal processing as pure functions over slices: no I/O, no printing.
 
 pub mod active_level;
+pub mod convolve;
 pub mod level;
 pub mod mix;
 pub mod resample;
+pub mod rt60;
