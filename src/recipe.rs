@@ -204,6 +204,11 @@ impl<'a> Params<'a> {
         found
     }
 
+    /// Whether the step's table has `key` (without taking it).
+    pub fn has(&self, key: &str) -> bool {
+        self.find(key).is_some()
+    }
+
     /// A draw under `key`, or `default` when the key is absent.
     ///
     /// # Errors

@@ -17,6 +17,7 @@ use crate::timemap::TimeMap;
 pub mod gain;
 pub mod noise;
 pub mod resample;
+pub mod room;
 pub mod speed;
 
 /// What a step did to one take.
@@ -129,6 +130,7 @@ pub const REGISTRY: &[(&str, ParseFn)] = &[
     ("resample", resample::parse),
     ("gain", gain::parse),
     ("noise", noise::parse),
+    ("room", room::parse),
 ];
 
 /// The parser for a step name.
