@@ -1,4 +1,4 @@
-//! Throughput of resampling, speed perturbation and the noise step, in seconds of audio per second of wall
+//! Throughput of resampling, speed perturbation, the noise step and convolution, in seconds of audio per second of wall
 //! time, on one core and on all cores. Run with `cargo bench --bench throughput`.
 //!
 //! Each figure is the median of seven passes over 200 clips of 5 s (20 distinct clips of
