@@ -1,31 +1,12 @@
 //! End-to-end runs of the real binary in temporary folders: good clips, bad clips, bad
 //! recipes, thread-count independence and `check`.
 
+mod common;
+
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
 
+use common::{read_jsonl, retake, write_wav_pcm16 as write_wav};
 use serde_json::Value;
-
-fn retake(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_retake"))
-        .args(args)
-        .output()
-        .expect("run retake")
-}
-
-fn write_wav(path: &Path, rate: u32, samples: &[f32]) {
-    let spec = hound::WavSpec {
-        channels: 1,
-        sample_rate: rate,
-        bits_per_sample: 16,
-        sample_format: hound::SampleFormat::Int,
-    };
-    let mut w = hound::WavWriter::create(path, spec).unwrap();
-    for &s in samples {
-        w.write_sample((s * 32767.0) as i16).unwrap();
-    }
-    w.finalize().unwrap();
-}
 
 /// Tone bursts standing in for words: 0.3 s bursts every 0.6 s from 0.2 s.
 fn bursts(rate: u32, secs: f64) -> Vec<f32> {
@@ -84,14 +65,6 @@ fn setup_good(dir: &Path) -> PathBuf {
     )
     .unwrap();
     manifest
-}
-
-fn read_jsonl(path: &Path) -> Vec<Value> {
-    std::fs::read_to_string(path)
-        .unwrap()
-        .lines()
-        .map(|l| serde_json::from_str(l).unwrap())
-        .collect()
 }
 
 fn files_under(dir: &Path) -> Vec<(String, Vec<u8>)> {

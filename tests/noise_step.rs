@@ -4,52 +4,11 @@
 mod common;
 
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
 
+use common::{demo, read_jsonl, run_recipe as run};
 use retake::dsp::mix::excerpt;
 use retake::noise::is_held_out;
 use serde_json::Value;
-
-fn retake(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_retake"))
-        .args(args)
-        .output()
-        .expect("run retake")
-}
-
-fn demo() -> PathBuf {
-    common::root().join("demo_audio")
-}
-
-fn read_jsonl(path: &Path) -> Vec<Value> {
-    std::fs::read_to_string(path)
-        .unwrap()
-        .lines()
-        .map(|l| serde_json::from_str(l).unwrap())
-        .collect()
-}
-
-/// Run `recipe` (text) over `manifest` into `dir/out`; returns (exit code, stderr, takes).
-fn run(dir: &Path, recipe: &str, manifest: &Path) -> (Option<i32>, String, Vec<Value>) {
-    let r = dir.join("recipe.toml");
-    std::fs::write(&r, recipe).unwrap();
-    let out = dir.join("out");
-    let o = retake(&[
-        "run",
-        r.to_str().unwrap(),
-        "-i",
-        manifest.to_str().unwrap(),
-        "-o",
-        out.to_str().unwrap(),
-    ]);
-    let stderr = String::from_utf8_lossy(&o.stderr).to_string();
-    let takes = if out.join("manifest.jsonl").exists() {
-        read_jsonl(&out.join("manifest.jsonl"))
-    } else {
-        vec![]
-    };
-    (o.status.code(), stderr, takes)
-}
 
 fn noise_record(take: &Value) -> &Value {
     take["origin"]["steps"]
@@ -223,20 +182,6 @@ fn a_hard_loop_of_a_tone_clicks_and_the_crossfaded_one_does_not() {
     );
 }
 
-fn write_wav(path: &Path, samples: &[f32]) {
-    let spec = hound::WavSpec {
-        channels: 1,
-        sample_rate: 16000,
-        bits_per_sample: 16,
-        sample_format: hound::SampleFormat::Int,
-    };
-    let mut w = hound::WavWriter::create(path, spec).unwrap();
-    for &s in samples {
-        w.write_sample((s * 32767.0).round() as i16).unwrap();
-    }
-    w.finalize().unwrap();
-}
-
 /// A clip of `amp`-level 300 Hz bursts for words at 0.2–0.5 s and 0.8–1.1 s of a 1.5 s
 /// file, with its one-line manifest.
 fn burst_clip(dir: &Path, amp: f64) -> PathBuf {
@@ -251,7 +196,7 @@ fn burst_clip(dir: &Path, amp: f64) -> PathBuf {
             }
         })
         .collect();
-    write_wav(&dir.join("c.wav"), &x);
+    common::write_wav_pcm16(&dir.join("c.wav"), 16000, &x);
     let m = dir.join("in.jsonl");
     std::fs::write(
         &m,
@@ -342,7 +287,7 @@ fn held_out_files_never_reach_training_takes() {
             let x: Vec<f32> = (0..8000)
                 .map(|k| 0.1 * ((k * (i + 3)) as f32 * 0.01).sin())
                 .collect();
-            write_wav(&bank.join(cat).join(format!("n{i}.wav")), &x);
+            common::write_wav_pcm16(&bank.join(cat).join(format!("n{i}.wav")), 16000, &x);
         }
     }
     let m = burst_clip(tmp.path(), 0.3);
@@ -474,7 +419,7 @@ fn bad_banks_and_keys_are_recipe_errors_naming_the_key() {
         mixed.join("fan.wav"),
     )
     .unwrap();
-    write_wav(&mixed.join("zero.wav"), &[]);
+    common::write_wav_pcm16(&mixed.join("zero.wav"), 16000, &[]);
     let (code, err, takes) = run(tmp.path(), &bank_recipe(&mixed, "snr_db = 5"), &m);
     assert_eq!(code, Some(0), "{err}");
     assert!(err.contains("warning") && err.contains("zero.wav"), "{err}");

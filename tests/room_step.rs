@@ -1,33 +1,14 @@
 //! The `room` step end to end: click onsets against rewritten timings, alignment and tail
 //! policies, direct-to-reverberant ratio, and bad rooms.
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+mod common;
 
+use std::path::{Path, PathBuf};
+
+use common::{run_recipe as run, write_wav_float};
 use serde_json::Value;
 
 const RATE: u32 = 16_000;
-
-fn retake(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_retake"))
-        .args(args)
-        .output()
-        .expect("run retake")
-}
-
-fn write_wav(path: &Path, samples: &[f32]) {
-    let spec = hound::WavSpec {
-        channels: 1,
-        sample_rate: RATE,
-        bits_per_sample: 32,
-        sample_format: hound::SampleFormat::Float,
-    };
-    let mut w = hound::WavWriter::create(path, spec).unwrap();
-    for &s in samples {
-        w.write_sample(s).unwrap();
-    }
-    w.finalize().unwrap();
-}
 
 fn read_wav(path: &Path) -> Vec<f32> {
     let mut r = hound::WavReader::open(path).unwrap();
@@ -53,7 +34,7 @@ fn click_clip(dir: &Path) -> (PathBuf, Vec<f64>) {
                 (0.5 * (1.0 - (2.0 * std::f64::consts::PI * k as f64 / 16.0).cos()) * 0.5) as f32;
         }
     }
-    write_wav(&dir.join("clicks.wav"), &x);
+    write_wav_float(&dir.join("clicks.wav"), RATE, &x);
     let lines: Vec<Value> = times
         .iter()
         .enumerate()
@@ -70,30 +51,6 @@ fn click_clip(dir: &Path) -> (PathBuf, Vec<f64>) {
     )
     .unwrap();
     (m, times)
-}
-
-fn run(dir: &Path, recipe: &str, manifest: &Path) -> (Option<i32>, String, Vec<Value>) {
-    let r = dir.join("recipe.toml");
-    std::fs::write(&r, recipe).unwrap();
-    let out = dir.join("out");
-    let _ = std::fs::remove_dir_all(&out);
-    let o = retake(&[
-        "run",
-        r.to_str().unwrap(),
-        "-i",
-        manifest.to_str().unwrap(),
-        "-o",
-        out.to_str().unwrap(),
-    ]);
-    let err = String::from_utf8_lossy(&o.stderr).to_string();
-    let takes = std::fs::read_to_string(out.join("manifest.jsonl"))
-        .map(|t| {
-            t.lines()
-                .map(|l| serde_json::from_str(l).unwrap())
-                .collect()
-        })
-        .unwrap_or_default();
-    (o.status.code(), err, takes)
 }
 
 /// Onset of the click expected near `t`: the first sample within ±20 ms whose magnitude
@@ -198,8 +155,12 @@ fn measured_responses_are_aligned_and_hit_the_drawn_drr() {
     let (m, clicks) = click_clip(tmp.path());
     let irs = tmp.path().join("irs");
     std::fs::create_dir_all(&irs).unwrap();
-    write_wav(&irs.join("bay.wav"), &synthetic_ir(0.030, 0.5, 0.8));
-    write_wav(&irs.join("corridor.wav"), &synthetic_ir(0.012, 0.9, 1.2));
+    write_wav_float(&irs.join("bay.wav"), RATE, &synthetic_ir(0.030, 0.5, 0.8));
+    write_wav_float(
+        &irs.join("corridor.wav"),
+        RATE,
+        &synthetic_ir(0.012, 0.9, 1.2),
+    );
     let recipe =
         "takes = 6\n[[step]]\ndo = \"room\"\nirs = \"irs\"\ndrr_db = { low = 0.0, high = 10.0 }\n";
     let (code, err, takes) = run(tmp.path(), recipe, &m);
@@ -234,7 +195,7 @@ fn bad_rooms_and_responses_are_recipe_errors() {
     let mk = |name: &str, h: &[f32]| {
         let d = tmp.path().join(name);
         std::fs::create_dir_all(&d).unwrap();
-        write_wav(&d.join("r.wav"), h);
+        write_wav_float(&d.join("r.wav"), RATE, h);
     };
     mk("zeros", &[0.0; 800]);
     mk("empty", &[]);

@@ -70,3 +70,87 @@ pub fn sine(freq: f64, secs: f64, rate: u32, amp: f64) -> Vec<f32> {
         })
         .collect()
 }
+
+/// The demo folder.
+pub fn demo() -> PathBuf {
+    root().join("demo_audio")
+}
+
+/// Run the real `retake` binary.
+pub fn retake(args: &[&str]) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_retake"))
+        .args(args)
+        .output()
+        .expect("run retake")
+}
+
+/// Write `recipe` to `dir/recipe.toml` and run it over `manifest` into a fresh `dir/out`.
+/// Returns the exit code, stderr and the output manifest's records (empty when none).
+pub fn run_recipe(
+    dir: &Path,
+    recipe: &str,
+    manifest: &Path,
+) -> (Option<i32>, String, Vec<serde_json::Value>) {
+    let r = dir.join("recipe.toml");
+    std::fs::write(&r, recipe).expect("write recipe");
+    let out = dir.join("out");
+    let _ = std::fs::remove_dir_all(&out);
+    let o = retake(&[
+        "run",
+        r.to_str().unwrap(),
+        "-i",
+        manifest.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    let takes = if out.join("manifest.jsonl").exists() {
+        read_jsonl(&out.join("manifest.jsonl"))
+    } else {
+        Vec::new()
+    };
+    (
+        o.status.code(),
+        String::from_utf8_lossy(&o.stderr).to_string(),
+        takes,
+    )
+}
+
+/// Every line of a JSON Lines file.
+pub fn read_jsonl(path: &Path) -> Vec<serde_json::Value> {
+    std::fs::read_to_string(path)
+        .expect("read jsonl")
+        .lines()
+        .map(|l| serde_json::from_str(l).expect("json line"))
+        .collect()
+}
+
+/// A mono 16-bit WAV of `samples` (rounded, x · 32767).
+pub fn write_wav_pcm16(path: &Path, rate: u32, samples: &[f32]) {
+    let spec = hound::WavSpec {
+        channels: 1,
+        sample_rate: rate,
+        bits_per_sample: 16,
+        sample_format: hound::SampleFormat::Int,
+    };
+    let mut w = hound::WavWriter::create(path, spec).expect("create wav");
+    for &s in samples {
+        w.write_sample((s * 32767.0).round() as i16)
+            .expect("write sample");
+    }
+    w.finalize().expect("finish wav");
+}
+
+/// A mono 32-bit float WAV of `samples`.
+pub fn write_wav_float(path: &Path, rate: u32, samples: &[f32]) {
+    let spec = hound::WavSpec {
+        channels: 1,
+        sample_rate: rate,
+        bits_per_sample: 32,
+        sample_format: hound::SampleFormat::Float,
+    };
+    let mut w = hound::WavWriter::create(path, spec).expect("create wav");
+    for &s in samples {
+        w.write_sample(s).expect("write sample");
+    }
+    w.finalize().expect("finish wav");
+}
