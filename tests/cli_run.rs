@@ -459,3 +459,40 @@ fn channels_option_picks_a_channel() {
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("expected `mix` or a channel number"));
 }
+
+#[test]
+fn every_step_gives_the_same_bytes_on_one_and_two_threads() {
+    // The demo recipe (speed, narrow-band pass, noise from a shared bank, gain) plus a
+    // simulated room from the shared room cache, over the demo clips.
+    let tmp = tempfile::tempdir().unwrap();
+    let demo = common::demo();
+    let recipe = std::fs::read_to_string(demo.join("recipe.toml")).unwrap()
+        + "\n[[step]]\ndo = \"room\"\nwidth_m = [4.0, 6.0]\nlength_m = 5.0\nheight_m = 3.0\nrt60_s = [0.3, 0.5]\nmax_ir_s = 0.6\n";
+    let recipe = recipe.replace(
+        "bank = \"noise\"",
+        &format!("bank = \"{}\"", demo.join("noise").display()),
+    );
+    assert!(recipe.contains("demo_audio/noise"));
+    let recipe_path = tmp.path().join("recipe.toml");
+    std::fs::write(&recipe_path, &recipe).unwrap();
+    let mut outs = Vec::new();
+    for threads in ["1", "2"] {
+        let out = tmp.path().join(threads);
+        let o = retake(&[
+            "run",
+            recipe_path.to_str().unwrap(),
+            "-i",
+            demo.join("manifest.jsonl").to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+            "-j",
+            threads,
+        ]);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        outs.push(files_under(&out));
+    }
+    assert_eq!(outs[0].len(), 1 + 1 + 40 + 10);
+    for (a, b) in outs[0].iter().zip(&outs[1]) {
+        assert!(a == b, "{} differs between 1 and 2 threads", a.0);
+    }
+}
