@@ -6,3 +6,4 @@ pub mod level;
 pub mod mix;
 pub mod resample;
 pub mod rt60;
+pub mod wsola;
