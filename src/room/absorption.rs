@@ -21,9 +21,11 @@
 //! Both formulas assume a diffuse sound field. An image-source simulation of a shoebox with
 //! specular walls is not diffuse: its decay starts at Eyring's rate and then slows, so its
 //! measured T30 runs 10 to 65 % longer than Eyring's figure, the more the more unequal the
-//! room's sides. [`image_source_rt60`] predicts what a simulation shows, and
-//! [`alpha_for_rt60_image_source`] is the inverse to use when a simulated room must show a
-//! wanted RT60.
+//! room's sides. [`image_source_rt60`] predicts what a pure image-source simulation
+//! ([`super::LateField::Images`]) shows, and [`alpha_for_rt60_image_source`] is the inverse
+//! to use when such a room must show a wanted RT60. The default simulation
+//! ([`super::LateField::Diffuse`]) replaces the late images by a tail decaying at Eyring's
+//! rate, so its measured RT60 is Eyring's and [`alpha_for_rt60_eyring`] is its inverse.
 
 use super::{RoomError, check_dims, surface_m2, volume_m3};
 

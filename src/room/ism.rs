@@ -1,4 +1,5 @@
-//! The image-source method for a shoebox room (Allen & Berkley 1979).
+//! The image-source method for a shoebox room (Allen & Berkley 1979), with a diffuse late
+//! field after a transition time by default ([`LateField`], [`super::late`]).
 //!
 //! Mirroring the source in the six walls, and the mirrors in the walls again, fills space
 //! with image sources; the sound at the microphone is the sum of every image's spherical
@@ -14,28 +15,36 @@
 //!   spanning ±[`FD_HALF_WIDTH`] samples ([`FD_HALF_WIDTH`]·2 taps, band edge at Nyquist),
 //!   never rounded to a sample. The kernel is tabulated at 1/[`FD_STEPS`] sample and
 //!   interpolated linearly between table rows (error below 2·10⁻⁶ of a tap).
-//! - **Which images.** Every image whose delay falls inside the response (plus the kernel's
-//!   half width) is included, whatever its order. The response is `max_len_s` long, or
-//!   shorter: it ends once every later image is at least `floor_db` (60 dB) weaker than
-//!   the direct path. An image at distance `d` has at least `d / L_max - 3` reflections
+//! - **Late field.** With [`LateField::Images`] every image whose delay falls inside the
+//!   response (plus the kernel's half width) is included, whatever its order. With
+//!   [`LateField::Diffuse`] (the default) only those up to the end of the crossfade after
+//!   the transition time [`super::late::transition_s`]; the diffuse tail follows. The
+//!   diffuse tail is skipped, leaving pure images, when the transition does not fall
+//!   inside the response or the walls absorb everything (alpha = 1: Eyring's RT60 is 0).
+//! - **Length.** The response is `max_len_s` long, or shorter: it ends once every later
+//!   image is at least `floor_db` (60 dB) weaker than the direct path. An image at distance `d` has at least `d / L_max - 3` reflections
 //!   (`L_max` the longest dimension), so its energy relative to the direct path is at most
 //!   `(1 - α)^(d / L_max - 3)`; that bound reaches `-floor_db` at
 //!   `d = L_max (3 + floor_db·ln10 / (10·(-ln(1 - α))))`. This end is never earlier than
-//!   1.5 times Eyring's RT60 (the mean free path 4V/S is at most 2·L_max/3).
+//!   1.5 times Eyring's RT60 (the mean free path 4V/S is at most 2·L_max/3). The same end
+//!   holds with the diffuse tail, which has fallen by then at least 60 dB × (1.5 - t_x/T)
+//!   below its start (`T` Eyring's RT60).
 //! - **DC.** Every image adds a positive pulse, so the raw response has a large DC
 //!   component (the "DC build-up"). A 2nd-order Butterworth high-pass (bilinear transform,
 //!   pre-warped) with its -3 dB cutoff at [`HIGHPASS_HZ`] removes it; it is causal, so the
 //!   direct path stays where it is, scaled by the filter's first tap `b0` (0.989 at 16 kHz).
-//! - **Cost.** About `4π R³ / (3 V)` images for a response reaching `R = c T` metres: 2.4
-//!   million for 1 s in a 72 m³ room (0.09 s in release on one core). More than
-//!   [`MAX_IMAGES`] is refused rather than left to run for minutes.
+//! - **Cost.** About `4π R³ / (3 V)` images lie within `R = c T` metres: 2.4
+//!   million for 1 s in a 72 m³ room (0.1 s in release on one core). More than
+//!   [`MAX_IMAGES`] is refused rather than left to run for minutes. With the diffuse tail
+//!   the images stop after 55 ms in that room (about 400 of them) and the whole second
+//!   takes under a millisecond, mostly the noise and the high-pass.
 //! - **Scale.** Amplitudes are physical (1/(4π d) per unit source strength): a direct path
 //!   of 1 m peaks near 0.08. Callers normalise as they need.
 
 use std::f64::consts::PI;
 use std::sync::OnceLock;
 
-use super::{Placement, RoomError, Shoebox, check_placement};
+use super::{Placement, RoomError, Shoebox, check_placement, late};
 
 /// Half width of the fractional-delay kernel in samples: each image is spread over the
 /// `2·FD_HALF_WIDTH` samples nearest its exact arrival time.
@@ -70,11 +79,29 @@ pub struct IrParams {
     /// The response ends once every later image is at least this many dB below the direct
     /// path (> 0); `f64::INFINITY` always fills `max_len_s`.
     pub floor_db: f64,
+    /// What follows the early reflections: the image sum to the end, or a diffuse tail
+    /// decaying at Eyring's rate.
+    pub late: LateField,
+}
+
+/// The model of the late part of a response.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum LateField {
+    /// Image sources to the end. Exact for a shoebox with specular walls, but such a room
+    /// never becomes diffuse: its decay slows with time and its measured RT60 runs 10 to
+    /// 65 % over Eyring's (see [`super::absorption::image_source_rt60`]).
+    Images,
+    /// Image sources up to [`super::late::transition_s`], then seeded noise whose energy
+    /// decays at Eyring's rate, level-matched and crossfaded (see [`super::late`]). The
+    /// measured RT60 follows Eyring's formula, as in a real room that scatters sound.
+    #[default]
+    Diffuse,
 }
 
 impl IrParams {
     /// The defaults: the given rate and length, c = 343 m/s, a high-pass at
-    /// [`HIGHPASS_HZ`], and the response ending [`FLOOR_DB`] below the direct path.
+    /// [`HIGHPASS_HZ`], the response ending [`FLOOR_DB`] below the direct path, and a
+    /// diffuse late field ([`LateField::Diffuse`]).
     pub fn new(rate: u32, max_len_s: f64) -> Self {
         IrParams {
             rate,
@@ -82,6 +109,7 @@ impl IrParams {
             c_m_s: super::SPEED_OF_SOUND_M_S,
             highpass_hz: Some(HIGHPASS_HZ),
             floor_db: FLOOR_DB,
+            late: LateField::Diffuse,
         }
     }
 }
@@ -118,7 +146,9 @@ pub fn impulse_response(
 /// The impulse response from source to microphone by the image-source method, at
 /// `params.rate`: `ceil(T · rate)` samples, where `T` is `max_len_s` or the time after which
 /// every image is `floor_db` below the direct path, whichever is shorter (see the module
-/// notes). Sample `i` is time `i / rate` after the source fires.
+/// notes). Sample `i` is time `i / rate` after the source fires. With
+/// [`LateField::Diffuse`] the part after the transition time is a diffuse tail, the same
+/// for the same parameters on every run and thread.
 ///
 /// # Errors
 /// [`RoomError::Dimension`] / [`RoomError::Absorption`] for a bad room;
@@ -176,8 +206,16 @@ pub fn impulse_response_with(
     let len_s = params.max_len_s.min(end_m / c);
     let len = ((len_s * fs).ceil() as usize).max(1);
     let mut out = vec![0.0f64; len];
-    // Images whose kernel still touches the last sample.
-    let reach_m = (len - 1 + FD_HALF_WIDTH) as f64 / fs * c;
+    // The diffuse tail needs Eyring's RT60 > 0 (alpha < 1) and a join inside the response.
+    let eyring_s = super::absorption::eyring_rt60(room.dims_m, room.absorption, c)?;
+    let join = match params.late {
+        LateField::Images => None,
+        LateField::Diffuse if eyring_s > 0.0 => late::Join::for_room(room.dims_m, fs, len),
+        LateField::Diffuse => None,
+    };
+    // Images whose kernel still touches the last sample that needs them.
+    let images_end = join.map_or(len, |j| j.images_end());
+    let reach_m = (images_end - 1 + FD_HALF_WIDTH) as f64 / fs * c;
     // One image per room-sized cell of the mirror lattice.
     let images = 4.0 / 3.0 * PI * reach_m.powi(3) / room.volume_m3();
     if images > MAX_IMAGES {
@@ -187,6 +225,10 @@ pub fn impulse_response_with(
         });
     }
     add_images(room, at, c, fs, reach_m, &mut out);
+    if let Some(join) = join {
+        let seed = late::tail_seed(room, at, params.rate, c);
+        late::add_diffuse_tail(&mut out, join, fs, eyring_s, seed);
+    }
     if let Some(fc) = params.highpass_hz {
         highpass(&mut out, fc, fs);
     }

@@ -1,11 +1,15 @@
 //! Simulated rooms: impulse responses of shoebox (rectangular) rooms by the image-source
-//! method (Allen & Berkley, J. Acoust. Soc. Am. 65(4), 1979), the RT60 formulas of Sabine and
-//! Eyring with their inverses, placement of a source and a microphone from six uniform
-//! numbers, and a bounded thread-safe cache of responses.
+//! method (Allen & Berkley, J. Acoust. Soc. Am. 65(4), 1979) with a diffuse late field, the
+//! RT60 formulas of Sabine and Eyring with their inverses, placement of a source and a
+//! microphone from six uniform numbers, and a bounded thread-safe cache of responses.
 //!
 //! Eyring's and Sabine's formulas assume a diffuse field, which a shoebox with specular walls
-//! is not: a simulated room decays more slowly than Eyring predicts. To make a room that
-//! shows a wanted RT60, take its absorption from
+//! is not: its pure image-source response decays more slowly than Eyring predicts. Real
+//! rooms scatter sound and their late field is close to diffuse, so by default a response
+//! is exact images up to a transition time and seeded noise decaying at Eyring's rate after
+//! it ([`LateField::Diffuse`], see [`late`]); its measured RT60 is Eyring's, so a room made
+//! with [`absorption::alpha_for_rt60_eyring`] shows the RT60 asked for. The pure image
+//! response stays available ([`LateField::Images`]); for it, take the absorption from
 //! [`absorption::alpha_for_rt60_image_source`].
 //!
 //! Pure library code: no I/O, no printing. Lengths are metres, times seconds, rates Hz; every
@@ -27,10 +31,12 @@
 pub mod absorption;
 mod cache;
 pub mod ism;
+pub mod late;
 
 pub use cache::RoomCache;
 pub use ism::{
-    FD_HALF_WIDTH, HIGHPASS_HZ, IrParams, direct_delay_s, impulse_response, impulse_response_with,
+    FD_HALF_WIDTH, HIGHPASS_HZ, IrParams, LateField, direct_delay_s, impulse_response,
+    impulse_response_with,
 };
 
 /// The speed of sound used when a caller has no better figure: 343 m/s (dry air near 20 °C).
@@ -127,8 +133,8 @@ pub enum RoomError {
         /// Why, with the bound that applies.
         reason: String,
     },
-    /// The response would need more images than [`ism::MAX_IMAGES`] (a long response in a
-    /// small, barely absorbing room).
+    /// The response would need more images than [`ism::MAX_IMAGES`] (a long pure-image
+    /// response in a small, barely absorbing room).
     #[error(
         "the response needs about {images:.1e} images, more than the limit of {limit:.0e}: \
          shorten the response or raise the absorption"
