@@ -3,7 +3,8 @@
 pub mod active_level;
 pub mod convolve;
 pub mod level;
+pub mod mel;
 pub mod mix;
 pub mod resample;
 pub mod rt60;
-pub mod wsola;
+pub mod stft;
