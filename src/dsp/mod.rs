@@ -8,3 +8,4 @@ pub mod mix;
 pub mod resample;
 pub mod rt60;
 pub mod stft;
+pub mod wsola;
