@@ -20,8 +20,8 @@ use crate::seed::{TakeRng, step_seed, take_seed};
 use crate::steps::{TakeContext, run_step};
 use crate::timemap::TimeMap;
 use crate::transcript::{
-    self, Clip, Entry, Manifest, Origin, Problem, StepRecord, read_manifest, remap_lines, validate,
-    write_manifest,
+    self, Clip, Entry, Manifest, Origin, Problem, StepRecord, mark_obscured, read_manifest,
+    remap_lines, validate, write_manifest,
 };
 use serde_json::Value;
 
@@ -410,6 +410,8 @@ fn make_take(
         .flat_map(|l| l.words.iter().map(|w| (w.start, w.end)))
         .collect();
     let (mut lines_now, mut words_now) = (source_lines.clone(), source_words.clone());
+    // Stretches hidden by masking steps, in the take's current timeline.
+    let mut hidden: Vec<(f64, f64)> = Vec::new();
     let mut stems = Vec::new();
     for (i, planned) in plan.steps.iter().enumerate() {
         let mut rng = TakeRng::new(step_seed(seed, i));
@@ -442,6 +444,11 @@ fn make_take(
             };
             lines_now = now(&source_lines);
             words_now = now(&source_words);
+            hidden = hidden
+                .iter()
+                .map(|&(a, b)| done.map.apply_span(a, b))
+                .chain(done.hidden.iter().copied())
+                .collect();
             record.ran = done.skipped.is_none();
             record.note = done.skipped;
             record.drawn = done.drawn;
@@ -463,10 +470,14 @@ fn make_take(
         ));
     }
     let duration = audio.duration();
-    let lines = clip
-        .lines
-        .as_ref()
-        .map(|lines| remap_lines(lines, &map, duration));
+    let masks = plan.steps.iter().any(|p| p.step.hides_time());
+    let lines = clip.lines.as_ref().map(|lines| {
+        let mut lines = remap_lines(lines, &map, duration);
+        if masks {
+            mark_obscured(&mut lines, &hidden);
+        }
+        lines
+    });
     let mut out = Clip {
         lines,
         origin: Some(Origin {

@@ -361,6 +361,42 @@ pub fn remap_lines(lines: &[Line], map: &TimeMap, duration: f64) -> Vec<Line> {
         .collect()
 }
 
+/// Record on every line and word the fraction of its duration that lies under `hidden`
+/// spans (seconds, any order, may overlap), as `obscured` in [0, 1]. A zero-length label is
+/// obscured when its instant is hidden.
+pub fn mark_obscured(lines: &mut [Line], hidden: &[(f64, f64)]) {
+    let mut spans: Vec<(f64, f64)> = hidden.iter().copied().filter(|(a, b)| b > a).collect();
+    spans.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let mut merged: Vec<(f64, f64)> = Vec::with_capacity(spans.len());
+    for (a, b) in spans {
+        match merged.last_mut() {
+            Some(last) if a <= last.1 => last.1 = last.1.max(b),
+            _ => merged.push((a, b)),
+        }
+    }
+    let fraction = |start: f64, end: f64| -> f64 {
+        if end <= start {
+            let inside = merged.iter().any(|&(a, b)| a <= start && start < b);
+            return if inside { 1.0 } else { 0.0 };
+        }
+        let covered: f64 = merged
+            .iter()
+            .map(|&(a, b)| (b.min(end) - a.max(start)).max(0.0))
+            .sum();
+        (covered / (end - start)).clamp(0.0, 1.0)
+    };
+    for line in lines {
+        line.extra.insert(
+            "obscured".into(),
+            Value::from(fraction(line.start, line.end)),
+        );
+        for w in &mut line.words {
+            w.extra
+                .insert("obscured".into(), Value::from(fraction(w.start, w.end)));
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -451,6 +487,19 @@ mod tests {
         let mut c = clip;
         c.lines.as_mut().unwrap()[0].words[0].end = f64::NAN;
         assert!(fields(&c, Some(2.0)).contains(&"lines[0].words[0].end".to_string()));
+    }
+
+    #[test]
+    fn obscured_is_the_covered_fraction() {
+        let mut lines = parse_clip(GOOD).unwrap().lines.unwrap();
+        // Words 0.5-0.9 and 1.0-1.5; hidden 0.7-1.1 and 1.05-1.2 (overlapping).
+        mark_obscured(&mut lines, &[(1.05, 1.2), (0.7, 1.1)]);
+        let o = |v: &Map<String, Value>| v["obscured"].as_f64().unwrap();
+        assert!((o(&lines[0].words[0].extra) - 0.5).abs() < 1e-12);
+        assert!((o(&lines[0].words[1].extra) - 0.4).abs() < 1e-12);
+        assert!((o(&lines[0].extra) - 0.5).abs() < 1e-12);
+        mark_obscured(&mut lines, &[]);
+        assert_eq!(o(&lines[0].words[0].extra), 0.0);
     }
 
     #[test]

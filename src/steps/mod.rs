@@ -15,10 +15,12 @@ use crate::seed::TakeRng;
 use crate::timemap::TimeMap;
 
 pub mod gain;
+pub mod mask;
 pub mod noise;
 pub mod resample;
 pub mod room;
 pub mod speed;
+pub mod warp;
 
 /// What a step did to one take.
 #[derive(Debug, Clone)]
@@ -36,6 +38,10 @@ pub struct StepOutput {
     pub stems: Vec<(&'static str, Audio)>,
     /// Set when the step left the take unchanged on purpose: the reason, recorded.
     pub skipped: Option<String>,
+    /// Stretches of the output, in seconds, whose content the step hid (time masks): the
+    /// runner carries them through later steps' maps and records on every word the
+    /// fraction of it they cover (`obscured`).
+    pub hidden: Vec<(f64, f64)>,
 }
 
 impl StepOutput {
@@ -48,6 +54,7 @@ impl StepOutput {
             measured: Map::new(),
             stems: Vec::new(),
             skipped: None,
+            hidden: Vec::new(),
         }
     }
 }
@@ -87,6 +94,12 @@ pub struct PlanContext<'a> {
 pub trait Step: Send + Sync + std::fmt::Debug {
     /// The name used in recipes (`do = "..."`) and in take records.
     fn name(&self) -> &'static str;
+
+    /// Whether the step can hide stretches of time (then every word of every take gets an
+    /// `obscured` figure, 0 where nothing was hidden).
+    fn hides_time(&self) -> bool {
+        false
+    }
 
     /// Process one take. `audio` is at the plan's rate and so must the result be; it is
     /// never empty when called through [`run_step`].
@@ -131,6 +144,8 @@ pub const REGISTRY: &[(&str, ParseFn)] = &[
     ("gain", gain::parse),
     ("noise", noise::parse),
     ("room", room::parse),
+    ("mask", mask::parse),
+    ("warp", warp::parse),
 ];
 
 /// The parser for a step name.
