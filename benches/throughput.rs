@@ -1,4 +1,5 @@
-//! Throughput of resampling, speed perturbation, the noise step and convolution, in seconds of audio per second of wall
+//! Throughput of resampling, speed perturbation, convolution and whole steps (noise,
+//! mask, warp, simulated room), in seconds of audio per second of wall
 //! time, on one core and on all cores. Run with `cargo bench --bench throughput`.
 //!
 //! Each figure is the median of seven passes over 200 clips of 5 s (20 distinct clips of
@@ -82,28 +83,49 @@ fn main() {
     });
     let at_44k = clips(44_100);
     let at_16k = clips(16_000);
-    // The noise step as a recipe makes it: the demo bank decoded once, a line over most of
-    // each clip, SNR drawn per take.
-    let noise_plan = retake::recipe::parse(
-        &std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("bench.toml"),
-        "takes = 1\n[[step]]\ndo = \"noise\"\nbank = \"demo_audio/noise\"\nsnr_db = { low = 0, high = 20 }\n",
-    )
-    .expect("noise recipe");
-    let noise_step = noise_plan.steps[0].step.as_ref();
+    // Whole steps as a recipe makes them (the noise bank decoded once, a line over most of
+    // each clip, values drawn per take from the take's own stream).
+    let step_plans: Vec<(&str, retake::recipe::Plan)> = [
+        ("noise at a drawn SNR over lines", "do = \"noise\"\nbank = \"demo_audio/noise\"\nsnr_db = { low = 0, high = 20 }"),
+        ("mask, preset LD (2 bands, 2 spans)", "do = \"mask\"\npreset = \"LD\""),
+        ("warp by up to 80 ms (WSOLA)", "do = \"warp\"\nmax_shift_s = 0.08"),
+        ("room, simulated, drawn size, RT60 0.3-0.8 s", "do = \"room\"\nwidth_m = { low = 3, high = 8 }\nlength_m = { low = 4, high = 10 }\nheight_m = 3\nrt60_s = { low = 0.3, high = 0.8 }\nmax_ir_s = 1.0"),
+    ]
+    .into_iter()
+    .map(|(name, step)| {
+        let plan = retake::recipe::parse(
+            &std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("bench.toml"),
+            &format!("takes = 1\n[[step]]\n{step}\n"),
+        )
+        .expect("bench recipe");
+        (name, plan)
+    })
+    .collect();
     let lines = [(0.2, SECONDS - 0.2)];
-    let noise_work = |i: usize, x: &[f32]| {
+    let step_work = |plan: &retake::recipe::Plan, i: usize, x: &[f32]| {
         let take = TakeContext {
             lines: &lines,
-            words: &[],
+            words: &lines,
         };
         let audio = Audio {
             rate: 16_000,
             samples: x.to_vec(),
         };
-        let out = run_step(noise_step, audio, &take, &mut TakeRng::new(i as u64));
-        std::hint::black_box(out.expect("noise step"));
+        let out = run_step(
+            plan.steps[0].step.as_ref(),
+            audio,
+            &take,
+            &mut TakeRng::new(i as u64),
+        );
+        std::hint::black_box(out.expect("step"));
     };
-    let cases: [(&str, &[Vec<f32>], &Work<'_>); 5] = [
+    for (name, plan) in &step_plans {
+        for (label, pool) in &pools {
+            let rate = measure(pool, &at_16k, &|i, x| step_work(plan, i, x));
+            println!("{name}, {label}: {rate:.0} s of audio per second");
+        }
+    }
+    let cases: [(&str, &[Vec<f32>], &Work<'_>); 4] = [
         ("resample 44.1 kHz -> 16 kHz", &at_44k, &|_, x| {
             std::hint::black_box(resample(x, 44_100, 16_000));
         }),
@@ -116,7 +138,6 @@ fn main() {
         ("speed drawn from [0.9, 1.1]", &at_16k, &|i, x| {
             std::hint::black_box(speed(x, drawn(i)));
         }),
-        ("noise at a drawn SNR over lines", &at_16k, &noise_work),
     ];
     for (name, data, work) in cases {
         for (label, pool) in &pools {
