@@ -17,9 +17,11 @@ use crate::timemap::TimeMap;
 pub mod gain;
 pub mod mask;
 pub mod noise;
+pub mod pitch;
 pub mod resample;
 pub mod room;
 pub mod speed;
+pub mod stretch;
 pub mod warp;
 
 /// What a step did to one take.
@@ -146,6 +148,8 @@ pub const REGISTRY: &[(&str, ParseFn)] = &[
     ("room", room::parse),
     ("mask", mask::parse),
     ("warp", warp::parse),
+    ("stretch", stretch::parse),
+    ("pitch", pitch::parse),
 ];
 
 /// The parser for a step name.
