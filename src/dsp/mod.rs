@@ -3,6 +3,7 @@
 pub mod active_level;
 pub mod convolve;
 pub mod level;
+pub mod loudness;
 pub mod mel;
 pub mod mix;
 pub mod resample;
