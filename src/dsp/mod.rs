@@ -1,7 +1,10 @@
 //! Signal processing as pure functions over slices: no I/O, no printing.
 
 pub mod active_level;
+pub mod channel;
 pub mod convolve;
+pub mod filter;
+pub mod g711;
 pub mod level;
 pub mod loudness;
 pub mod mel;
