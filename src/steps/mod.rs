@@ -15,6 +15,7 @@ use crate::seed::TakeRng;
 use crate::timemap::TimeMap;
 
 pub mod gain;
+pub mod level;
 pub mod mask;
 pub mod noise;
 pub mod pitch;
@@ -150,6 +151,7 @@ pub const REGISTRY: &[(&str, ParseFn)] = &[
     ("warp", warp::parse),
     ("stretch", stretch::parse),
     ("pitch", pitch::parse),
+    ("level", level::parse),
 ];
 
 /// The parser for a step name.
