@@ -21,9 +21,10 @@ fn speechlike(secs: f64, amp: f32) -> Vec<f32> {
     let mut i = 1600;
     while i < n {
         let len = (2400.0 + 4000.0 * rnd()) as usize;
-        for k in i..(i + len).min(n) {
-            let env = (std::f32::consts::PI * (k - i) as f32 / len as f32).sin();
-            x[k] = amp * env * (rnd() - 0.5);
+        let end = (i + len).min(n);
+        for (k, v) in x[i..end].iter_mut().enumerate() {
+            let env = (std::f32::consts::PI * k as f32 / len as f32).sin();
+            *v = amp * env * (rnd() - 0.5);
         }
         i += len + (1600.0 + 4000.0 * rnd()) as usize;
     }
