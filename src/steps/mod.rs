@@ -14,6 +14,7 @@ use crate::recipe::{Params, RecipeError};
 use crate::seed::TakeRng;
 use crate::timemap::TimeMap;
 
+pub mod channel;
 pub mod gain;
 pub mod level;
 pub mod mask;
@@ -152,6 +153,7 @@ pub const REGISTRY: &[(&str, ParseFn)] = &[
     ("stretch", stretch::parse),
     ("pitch", pitch::parse),
     ("level", level::parse),
+    ("channel", channel::parse),
 ];
 
 /// The parser for a step name.
