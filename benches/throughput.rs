@@ -89,6 +89,8 @@ fn main() {
         ("noise at a drawn SNR over lines", "do = \"noise\"\nbank = \"demo_audio/noise\"\nsnr_db = { low = 0, high = 20 }"),
         ("mask, preset LD (2 bands, 2 spans)", "do = \"mask\"\npreset = \"LD\""),
         ("warp by up to 80 ms (WSOLA)", "do = \"warp\"\nmax_shift_s = 0.08"),
+        ("stretch by a factor drawn from [0.8, 1.25] (WSOLA)", "do = \"stretch\"\nfactor = { low = 0.8, high = 1.25 }"),
+        ("channel: narrow band, mu-law, soft clip", "do = \"channel\"\nband = \"narrow\"\ncodec = \"mulaw\"\nclip = \"soft\"\nclip_dbfs = -6"),
         ("room, simulated, drawn size, RT60 0.3-0.8 s", "do = \"room\"\nwidth_m = { low = 3, high = 8 }\nlength_m = { low = 4, high = 10 }\nheight_m = 3\nrt60_s = { low = 0.3, high = 0.8 }\nmax_ir_s = 1.0"),
     ]
     .into_iter()
