@@ -29,6 +29,30 @@ pub fn db_to_amplitude(db: f64) -> f64 {
     10f64.powf(db / 20.0)
 }
 
+/// `x` times `gain`, lowered where needed so the peak is at most `ceiling` (linear).
+/// Returns the scaled samples and the gain actually applied. When the gain would pass the
+/// ceiling it becomes `ceiling / peak`; f32 rounding can then leave the peak an ulp above,
+/// so the gain is nudged down by a float epsilon until the ceiling holds.
+pub fn scale_under(x: &[f32], gain: f64, ceiling: f64) -> (Vec<f32>, f64) {
+    let before = peak(x);
+    let mut k = if before * gain > ceiling {
+        ceiling / before
+    } else {
+        gain
+    };
+    let scale = |k: f64| {
+        x.iter()
+            .map(|&s| (f64::from(s) * k) as f32)
+            .collect::<Vec<f32>>()
+    };
+    let mut y = scale(k);
+    while peak(&y) > ceiling {
+        k *= 1.0 - f64::from(f32::EPSILON);
+        y = scale(k);
+    }
+    (y, k)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -44,5 +68,17 @@ mod tests {
         assert!((peak(&x) - 1.0).abs() < 1e-6);
         assert!((db_to_amplitude(-6.0206) - 0.5).abs() < 1e-4);
         assert!((amplitude_db(0.5) + 6.0206).abs() < 1e-3);
+    }
+
+    #[test]
+    fn scale_under_holds_the_ceiling_and_keeps_headroom_gains() {
+        let x: Vec<f32> = (0..1000).map(|i| ((i as f32) * 0.1).sin() * 0.5).collect();
+        let ceiling = db_to_amplitude(-1.0);
+        let (y, k) = scale_under(&x, 4.0, ceiling);
+        assert!(peak(&y) <= ceiling && peak(&y) > ceiling * 0.999_999);
+        assert!((k - ceiling / peak(&x)).abs() < 1e-6);
+        let (y, k) = scale_under(&x, 0.5, ceiling);
+        assert_eq!(k, 0.5);
+        assert!((peak(&y) - 0.25).abs() < 1e-6);
     }
 }

@@ -5,7 +5,7 @@
 use serde_json::Value;
 
 use crate::audio::Audio;
-use crate::dsp::level::{amplitude_db, db_to_amplitude, peak};
+use crate::dsp::level::{amplitude_db, db_to_amplitude, peak, scale_under};
 use crate::recipe::{Draw, Params, RecipeError};
 use crate::seed::TakeRng;
 use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};
@@ -57,20 +57,11 @@ impl Step for Gain {
     ) -> Result<StepOutput, StepError> {
         let db = self.db.sample(rng);
         let duration = audio.duration();
-        let ceiling = db_to_amplitude(self.ceiling_db);
-        let before = peak(&audio.samples);
-        let mut factor = db_to_amplitude(db);
-        if before * factor > ceiling {
-            factor = ceiling / before;
-        }
-        let mut samples = audio.samples;
-        let source = samples.clone();
-        scale(&source, factor, &mut samples);
-        // f32 rounding can leave the peak an ulp above the ceiling: nudge until it holds.
-        while peak(&samples) > ceiling {
-            factor *= 1.0 - f64::from(f32::EPSILON);
-            scale(&source, factor, &mut samples);
-        }
+        let (samples, factor) = scale_under(
+            &audio.samples,
+            db_to_amplitude(db),
+            db_to_amplitude(self.ceiling_db),
+        );
         let after = peak(&samples);
         let mut out = StepOutput::new(
             Audio {
@@ -86,13 +77,6 @@ impl Step for Gain {
         out.measured
             .insert("peak_dbfs".into(), Value::from(amplitude_db(after)));
         Ok(out)
-    }
-}
-
-fn scale(source: &[f32], factor: f64, out: &mut [f32]) {
-    let f = factor as f32;
-    for (o, &s) in out.iter_mut().zip(source) {
-        *o = s * f;
     }
 }
 

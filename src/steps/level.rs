@@ -5,7 +5,7 @@
 use serde_json::Value;
 
 use crate::audio::Audio;
-use crate::dsp::level::{amplitude_db, db_to_amplitude, peak};
+use crate::dsp::level::{amplitude_db, db_to_amplitude, peak, scale_under};
 use crate::dsp::loudness::integrated_loudness;
 use crate::recipe::{Draw, Params, RecipeError};
 use crate::seed::TakeRng;
@@ -98,24 +98,9 @@ impl Step for Level {
                 target - amplitude_db(before_peak)
             }
         };
-        // Never past the ceiling; f32 rounding may leave the peak an ulp above, so nudge.
-        let ceiling = db_to_amplitude(self.ceiling_db);
-        let mut k = db_to_amplitude(wanted_db);
-        if before_peak * k > ceiling {
-            k = ceiling / before_peak;
-        }
         let source = std::mem::take(&mut out.audio.samples);
-        let scale = |k: f64| {
-            source
-                .iter()
-                .map(|&s| (f64::from(s) * k) as f32)
-                .collect::<Vec<f32>>()
-        };
-        let mut samples = scale(k);
-        while peak(&samples) > ceiling {
-            k *= 1.0 - f64::from(f32::EPSILON);
-            samples = scale(k);
-        }
+        let ceiling = db_to_amplitude(self.ceiling_db);
+        let (samples, k) = scale_under(&source, db_to_amplitude(wanted_db), ceiling);
         out.measured
             .insert("applied_db".into(), Value::from(amplitude_db(k)));
         out.measured.insert(

@@ -15,7 +15,7 @@ use serde_json::Value;
 
 use crate::audio::Audio;
 use crate::dsp::convolve::convolve;
-use crate::dsp::level::peak;
+use crate::dsp::level::{peak, scale_under};
 use crate::dsp::rt60::rt60;
 use crate::noise::load_bank;
 use crate::recipe::{Draw, Params, RecipeError};
@@ -403,21 +403,9 @@ impl Step for Room {
             (true, false) => (0, n + delay),
             (true, true) => (0, wet.len()),
         };
-        let mut samples = wet[start..start + len].to_vec();
-        let p = peak(&samples);
-        let mut scaled_db = 0.0;
-        if p > FULL_SCALE {
-            let k = FULL_SCALE / p;
-            for s in &mut samples {
-                *s = (f64::from(*s) * k) as f32;
-            }
-            while peak(&samples) > FULL_SCALE {
-                for s in &mut samples {
-                    *s *= 1.0 - f32::EPSILON;
-                }
-            }
-            scaled_db = 20.0 * (FULL_SCALE / p).log10();
-        }
+        // Reverberation adds energy: never past full scale.
+        let (samples, k) = scale_under(&wet[start..start + len], 1.0, FULL_SCALE);
+        let scaled_db = 20.0 * k.log10();
         let delay_s = delay as f64 / f64::from(rate);
         let d_out = samples.len() as f64 / f64::from(rate);
         out.map = if self.shift {
