@@ -5,44 +5,10 @@ mod common;
 
 use std::path::Path;
 
-use retake::audio::Audio;
 use retake::dsp::filter::{band_pass, response_db};
 use retake::recipe;
-use retake::seed::TakeRng;
-use retake::steps::{StepOutput, TakeContext, run_step};
 
 const RATE: u32 = 16_000;
-
-fn apply(step: &str, x: &[f32]) -> StepOutput {
-    let plan = recipe::parse(
-        Path::new("r.toml"),
-        &format!("takes = 1\n[[step]]\n{step}\n"),
-    )
-    .expect("recipe");
-    let audio = Audio {
-        rate: RATE,
-        samples: x.to_vec(),
-    };
-    run_step(
-        plan.steps[0].step.as_ref(),
-        audio,
-        &TakeContext::default(),
-        &mut TakeRng::new(1),
-    )
-    .expect("step")
-}
-
-fn noise(n: usize) -> Vec<f32> {
-    let mut s = 3u64;
-    (0..n)
-        .map(|_| {
-            s = s
-                .wrapping_mul(6_364_136_223_846_793_005)
-                .wrapping_add(1_442_695_040_888_963_407);
-            ((s >> 40) as f32 / (1u64 << 24) as f32 - 0.5) * 0.5
-        })
-        .collect()
-}
 
 /// Output/input power ratio in dB at given frequencies, from scipy.signal.welch (PyPI)
 /// spectra with 4096-point segments, averaged over ±20 Hz.
@@ -62,8 +28,11 @@ print(json.dumps(out))
 
 #[test]
 fn narrow_band_attenuation_matches_the_filter() {
-    let x = noise(20 * RATE as usize);
-    let out = apply("do = \"channel\"\nband = \"narrow\"", &x);
+    let x: Vec<f32> = common::noise(20 * RATE as usize, 3)
+        .iter()
+        .map(|v| v * 0.25)
+        .collect();
+    let out = common::apply_step("do = \"channel\"\nband = \"narrow\"", RATE, &x, &[], 1);
     let tmp = tempfile::tempdir().unwrap();
     let (a, b) = (tmp.path().join("x.f64"), tmp.path().join("y.f64"));
     common::write_f64(&a, &x.iter().map(|&v| f64::from(v)).collect::<Vec<_>>());
@@ -137,7 +106,7 @@ fn clicks_keep_their_place_through_filters_and_g711() {
         "do = \"channel\"\nband = \"narrow\"\ncodec = \"mulaw\"",
         "do = \"channel\"\nband = \"wide\"\ncodec = \"alaw\"\ntilt_db_per_octave = -3",
     ] {
-        let out = apply(step, &x);
+        let out = common::apply_step(step, RATE, &x, &[], 1);
         assert_eq!(out.audio.samples.len(), n);
         assert_eq!(out.map, retake::timemap::TimeMap::identity(2.0));
         for &c in &clicks {
@@ -164,14 +133,20 @@ fn clipping_and_bits() {
     let x: Vec<f32> = (0..16000)
         .map(|i| (0.9 * (i as f64 * 0.05).sin()) as f32)
         .collect();
-    let out = apply("do = \"channel\"\nclip = \"hard\"\nclip_dbfs = -6", &x);
+    let out = common::apply_step(
+        "do = \"channel\"\nclip = \"hard\"\nclip_dbfs = -6",
+        RATE,
+        &x,
+        &[],
+        1,
+    );
     let peak = out.audio.samples.iter().fold(0.0f32, |m, s| m.max(s.abs()));
     assert!(
         (f64::from(peak) - 10f64.powf(-6.0 / 20.0)).abs() < 1e-6,
         "{peak}"
     );
     assert!(out.measured["clipped_fraction"].as_f64().unwrap() > 0.3);
-    let out = apply("do = \"channel\"\nbits = 8", &x);
+    let out = common::apply_step("do = \"channel\"\nbits = 8", RATE, &x, &[], 1);
     for s in &out.audio.samples {
         let steps = f64::from(*s) * 128.0;
         assert!(
@@ -179,7 +154,13 @@ fn clipping_and_bits() {
             "{s} is not on the 8-bit grid"
         );
     }
-    let out = apply("do = \"channel\"\nclip = \"soft\"\nclip_dbfs = -3", &x);
+    let out = common::apply_step(
+        "do = \"channel\"\nclip = \"soft\"\nclip_dbfs = -3",
+        RATE,
+        &x,
+        &[],
+        1,
+    );
     let level = 10f64.powf(-3.0 / 20.0) as f32;
     assert!(out.audio.samples.iter().all(|s| s.abs() < level));
 }

@@ -28,19 +28,6 @@ fn direct_sum(x: &[f32], h: &[f32]) -> Vec<f64> {
     y
 }
 
-/// A fixed pseudo-random signal in [-1, 1) (64-bit LCG, Knuth's MMIX constants).
-fn noise(n: usize, seed: u64) -> Vec<f32> {
-    let mut state = seed.wrapping_mul(0x9e37_79b9_7f4a_7c15) | 1;
-    (0..n)
-        .map(|_| {
-            state = state
-                .wrapping_mul(6_364_136_223_846_793_005)
-                .wrapping_add(1_442_695_040_888_963_407);
-            (state >> 40) as f32 / (1u64 << 23) as f32 - 1.0
-        })
-        .collect()
-}
-
 /// For each case `kind n m seed`, writes x (n samples) and h (m samples) as float32 values
 /// stored in f64, and y = scipy.signal.fftconvolve(x, h) computed in float64.
 /// Kinds: "white" is standard normal noise for both; "room" is a clip-like x (two tones in
@@ -135,8 +122,8 @@ fn every_method_matches_the_defining_sum_on_small_sizes() {
     let mut checked = 0;
     for &n in &lengths {
         for &m in &lengths {
-            let x = noise(n, n as u64);
-            let h = noise(m, 1000 + m as u64);
+            let x = common::noise(n, n as u64);
+            let h = common::noise(m, 1000 + m as u64);
             let want = direct_sum(&x, &h);
             let short = n.min(m);
             let mut methods = vec![Method::Direct];
@@ -172,8 +159,8 @@ fn empty_operands_give_an_empty_result() {
 #[test]
 fn operands_commute_and_a_unit_impulse_is_the_identity() {
     // Textbook properties: x * h = h * x; x * delta = x; x * delta(t - d) = x delayed by d.
-    let x = noise(5000, 1);
-    let h = noise(700, 2);
+    let x = common::noise(5000, 1);
+    let h = common::noise(700, 2);
     let (a, b) = (convolve(&x, &h), convolve(&h, &x));
     assert_eq!(a.len(), 5699);
     let diff = a
@@ -198,8 +185,8 @@ fn operands_commute_and_a_unit_impulse_is_the_identity() {
 
 #[test]
 fn convolve_into_overwrites_the_callers_buffer() {
-    let x = noise(3000, 3);
-    let h = noise(200, 4);
+    let x = common::noise(3000, 3);
+    let h = common::noise(200, 4);
     let mut out = vec![123.0; full_len(x.len(), h.len())];
     convolve_into(&x, &h, &mut out);
     assert_eq!(out, convolve(&x, &h));

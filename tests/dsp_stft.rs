@@ -30,25 +30,12 @@ fn config(window_len: usize, hop: usize, fft_len: usize, edge: Edge) -> StftConf
     }
 }
 
-/// A fixed pseudo-random signal in [-1, 1) (64-bit LCG, Knuth's MMIX constants).
-fn noise(n: usize, seed: u64) -> Vec<f32> {
-    let mut state = seed.wrapping_mul(0x9e37_79b9_7f4a_7c15) | 1;
-    (0..n)
-        .map(|_| {
-            state = state
-                .wrapping_mul(6_364_136_223_846_793_005)
-                .wrapping_add(1_442_695_040_888_963_407);
-            (state >> 40) as f32 / (1u64 << 23) as f32 - 1.0
-        })
-        .collect()
-}
-
 /// A speech-like signal at 16 kHz: a voiced source gliding from 110 to 190 Hz with 30
 /// harmonics shaped by two formant-like resonances (700 Hz and 1200 Hz), under a 4 Hz
 /// syllable envelope, plus quiet noise (so the pauses are not digital silence).
 fn speech_like(n: usize, seed: u64) -> Vec<f32> {
     let rate = 16_000.0;
-    let hiss = noise(n, seed);
+    let hiss = common::noise(n, seed);
     let mut phase = 0.0_f64;
     (0..n)
         .map(|i| {
@@ -93,7 +80,7 @@ fn resynthesis_returns_the_signal_over_configs_signals_and_lengths() {
             let mut worst = 0.0_f64;
             for (k, &n) in lengths.iter().enumerate() {
                 for (kind, x) in [
-                    ("noise", noise(n, k as u64 + 1)),
+                    ("noise", common::noise(n, k as u64 + 1)),
                     ("speech-like", speech_like(n, k as u64 + 100)),
                 ] {
                     let spec = stft.analyse(&x);
@@ -144,7 +131,7 @@ fn resynthesis_at_the_longest_accepted_hop_is_still_exact() {
 fn reused_buffers_give_the_same_results() {
     let mut stft = Stft::new(StftConfig::default()).expect("valid");
     let long = speech_like(20_000, 3);
-    let short = noise(3_001, 4);
+    let short = common::noise(3_001, 4);
     let mut spec = Spectrogram::default();
     stft.analyse_into(&long, &mut spec);
     assert_eq!(spec, stft.analyse(&long));
@@ -170,7 +157,7 @@ fn empty_signal_has_no_frames_and_resynthesises_empty() {
 #[test]
 #[should_panic(expected = "different STFT configuration")]
 fn synthesis_refuses_a_spectrogram_of_another_configuration() {
-    let x = noise(2_000, 5);
+    let x = common::noise(2_000, 5);
     let spec = Stft::new(StftConfig::default()).expect("valid").analyse(&x);
     let mut other = Stft::new(config(512, 128, 512, Edge::Reflect)).expect("valid");
     let _ = other.synthesise(&spec);

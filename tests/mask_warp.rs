@@ -6,51 +6,9 @@ mod common;
 use std::path::Path;
 
 use common::{read_jsonl, run_recipe};
-use retake::audio::Audio;
-use retake::recipe::{self, Plan};
-use retake::seed::TakeRng;
-use retake::steps::{StepOutput, TakeContext, run_step};
+use retake::recipe;
 
 const RATE: u32 = 16_000;
-
-fn plan(step: &str) -> Plan {
-    recipe::parse(
-        Path::new("r.toml"),
-        &format!("takes = 1\n[[step]]\n{step}\n"),
-    )
-    .expect("recipe")
-}
-
-fn apply(step: &str, x: &[f32], words: &[(f64, f64)], seed: u64) -> StepOutput {
-    let p = plan(step);
-    let take = TakeContext {
-        lines: words,
-        words,
-    };
-    let audio = Audio {
-        rate: RATE,
-        samples: x.to_vec(),
-    };
-    run_step(
-        p.steps[0].step.as_ref(),
-        audio,
-        &take,
-        &mut TakeRng::new(seed),
-    )
-    .expect("step")
-}
-
-fn noise(n: usize, seed: u64) -> Vec<f32> {
-    let mut s = seed;
-    (0..n)
-        .map(|_| {
-            s = s
-                .wrapping_mul(6_364_136_223_846_793_005)
-                .wrapping_add(1_442_695_040_888_963_407);
-            ((s >> 40) as f32 / (1u64 << 24) as f32 - 0.5) * 0.5
-        })
-        .collect()
-}
 
 /// Welch power spectra of input and output by scipy.signal.welch (PyPI), 1024-point Hann
 /// segments; prints the band levels in dB for [lo, hi) bands given as JSON.
@@ -71,11 +29,15 @@ print(json.dumps(out))
 
 #[test]
 fn frequency_mask_removes_its_band_and_leaves_the_rest() {
-    let x = noise(3 * RATE as usize, 5);
+    let x = common::noise(3 * RATE as usize, 5)
+        .iter()
+        .map(|v| v * 0.25)
+        .collect::<Vec<f32>>();
     let tmp = tempfile::tempdir().unwrap();
     for seed in [1u64, 2, 3] {
-        let out = apply(
+        let out = common::apply_step(
             "do = \"mask\"\nfreq_masks = 1\nfreq_width_hz = 1500",
+            RATE,
             &x,
             &[],
             seed,
@@ -132,7 +94,10 @@ fn frequency_mask_removes_its_band_and_leaves_the_rest() {
 fn time_mask_silences_its_span_and_obscured_is_the_overlap() {
     // A 4 s clip of noise with eight "words".
     let tmp = tempfile::tempdir().unwrap();
-    let x = noise(4 * RATE as usize, 9);
+    let x = common::noise(4 * RATE as usize, 9)
+        .iter()
+        .map(|v| v * 0.25)
+        .collect::<Vec<f32>>();
     common::write_wav_float(&tmp.path().join("n.wav"), RATE, &x);
     let words: Vec<(f64, f64)> = (0..8)
         .map(|i| (0.2 + 0.45 * f64::from(i), 0.5 + 0.45 * f64::from(i)))
@@ -202,13 +167,17 @@ fn time_mask_silences_its_span_and_obscured_is_the_overlap() {
 
 #[test]
 fn caps_keep_words_audible() {
-    let x = noise(4 * RATE as usize, 3);
+    let x = common::noise(4 * RATE as usize, 3)
+        .iter()
+        .map(|v| v * 0.25)
+        .collect::<Vec<f32>>();
     let words: Vec<(f64, f64)> = (0..8)
         .map(|i| (0.2 + 0.45 * f64::from(i), 0.5 + 0.45 * f64::from(i)))
         .collect();
     for seed in 0..20 {
-        let out = apply(
+        let out = common::apply_step(
             "do = \"mask\"\ntime_masks = 2\ntime_width_s = 0.25\nmax_obscured = 0.3",
+            RATE,
             &x,
             &words,
             seed,
@@ -231,8 +200,9 @@ fn caps_keep_words_audible() {
                 cover / (b - a)
             );
         }
-        let out = apply(
+        let out = common::apply_step(
             "do = \"mask\"\ntime_masks = 1\ntime_width_s = 0.1\nonly_gaps = true",
+            RATE,
             &x,
             &words,
             seed,
@@ -245,8 +215,9 @@ fn caps_keep_words_audible() {
         }
         // The widest gap (before the first word, after the last) is 0.2 s: a 0.21 s mask
         // can never fit, so it is dropped and the decision recorded.
-        let out = apply(
+        let out = common::apply_step(
             "do = \"mask\"\ntime_masks = 1\ntime_width_s = 0.21\nonly_gaps = true",
+            RATE,
             &x[..(1.6 * f64::from(RATE)) as usize],
             &words[..3],
             seed,
@@ -259,16 +230,20 @@ fn caps_keep_words_audible() {
 
 #[test]
 fn no_masks_reconstructs_the_take() {
-    let x = noise(RATE as usize + 123, 4);
-    let out = apply("do = \"mask\"", &x, &[], 1);
+    let x = common::noise(RATE as usize + 123, 4)
+        .iter()
+        .map(|v| v * 0.25)
+        .collect::<Vec<f32>>();
+    let out = common::apply_step("do = \"mask\"", RATE, &x, &[], 1);
     let err = x
         .iter()
         .zip(&out.audio.samples)
         .map(|(a, b)| (a - b).abs())
         .fold(0.0f32, f32::max);
     assert!(err < 1e-5, "{err}");
-    let short = apply(
+    let short = common::apply_step(
         "do = \"mask\"\ntime_masks = 1\ntime_width_s = 0.01",
+        RATE,
         &x[..300],
         &[],
         1,
@@ -299,7 +274,7 @@ fn presets_convert_the_published_policies() {
             && (tw - 0.7).abs() < 1e-12
             && cap == 0.2
     );
-    let p = plan("do = \"mask\"\npreset = \"LD\"");
+    let p = common::one_step("do = \"mask\"\npreset = \"LD\"");
     assert_eq!(p.steps.len(), 1);
 }
 
@@ -328,8 +303,9 @@ fn bursts(secs: f64) -> (Vec<f32>, Vec<f64>) {
 fn warp_moves_bursts_with_their_timings_and_keeps_pitch() {
     let (x, onsets) = bursts(4.0);
     for (seed, shift) in [(1u64, 0.15), (2, -0.2), (3, 0.3)] {
-        let out = apply(
+        let out = common::apply_step(
             &format!("do = \"warp\"\nanchor = 0.5\nshift_s = {shift}"),
+            RATE,
             &x,
             &[],
             seed,

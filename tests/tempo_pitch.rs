@@ -1,35 +1,15 @@
 //! `stretch` (WSOLA tempo) and `pitch` (WSOLA + resampling): frequency, duration and burst
 //! onsets against the rewritten timings.
 
+mod common;
+
 use std::path::Path;
 
-use retake::audio::Audio;
 use retake::recipe;
-use retake::seed::TakeRng;
-use retake::steps::{StepOutput, TakeContext, run_step};
 
 const RATE: u32 = 16_000;
 /// One WSOLA frame at 16 kHz (25 ms), the duration tolerance the issue allows.
 const FRAME_S: f64 = 0.025;
-
-fn apply(step: &str, x: &[f32]) -> StepOutput {
-    let plan = recipe::parse(
-        Path::new("r.toml"),
-        &format!("takes = 1\n[[step]]\n{step}\n"),
-    )
-    .expect("recipe");
-    let audio = Audio {
-        rate: RATE,
-        samples: x.to_vec(),
-    };
-    run_step(
-        plan.steps[0].step.as_ref(),
-        audio,
-        &TakeContext::default(),
-        &mut TakeRng::new(1),
-    )
-    .expect("step")
-}
 
 fn tone(freq: f64, secs: f64) -> Vec<f32> {
     (0..(secs * f64::from(RATE)) as usize)
@@ -83,7 +63,7 @@ fn stretch_keeps_pitch_and_scales_duration() {
     // 1 %, duration d / f within one frame (physics of the operation; the issue's bounds).
     let x = tone(300.0, 3.0);
     for f in [0.8, 1.25] {
-        let out = apply(&format!("do = \"stretch\"\nfactor = {f}"), &x);
+        let out = common::apply_step(&format!("do = \"stretch\"\nfactor = {f}"), RATE, &x, &[], 1);
         let got = frequency(&out.audio.samples);
         assert!((got / 300.0 - 1.0).abs() < 0.01, "factor {f}: {got} Hz");
         let d = out.audio.duration();
@@ -96,7 +76,7 @@ fn stretch_keeps_pitch_and_scales_duration() {
 fn stretch_moves_bursts_with_their_timings() {
     let (x, onsets) = bursts(4.0);
     for f in [0.8, 1.25, 0.93] {
-        let out = apply(&format!("do = \"stretch\"\nfactor = {f}"), &x);
+        let out = common::apply_step(&format!("do = \"stretch\"\nfactor = {f}"), RATE, &x, &[], 1);
         for &o in &onsets {
             let mapped = out.map.apply(o);
             // The burst's own onset: a quarter amplitude 1/24 period (0.04 ms) after it starts.
@@ -113,7 +93,13 @@ fn stretch_moves_bursts_with_their_timings() {
 fn pitch_moves_frequency_and_keeps_time() {
     let x = tone(300.0, 3.0);
     for s in [2.0, -3.0, 7.0, -12.0] {
-        let out = apply(&format!("do = \"pitch\"\nsemitones = {s}"), &x);
+        let out = common::apply_step(
+            &format!("do = \"pitch\"\nsemitones = {s}"),
+            RATE,
+            &x,
+            &[],
+            1,
+        );
         // Equal temperament: a semitone is a factor 2^(1/12) (textbook).
         let want = 300.0 * 2f64.powf(s / 12.0);
         let got = frequency(&out.audio.samples);
@@ -129,7 +115,13 @@ fn pitch_moves_frequency_and_keeps_time() {
     }
     let (x, onsets) = bursts(4.0);
     for s in [3.0, -4.0] {
-        let out = apply(&format!("do = \"pitch\"\nsemitones = {s}"), &x);
+        let out = common::apply_step(
+            &format!("do = \"pitch\"\nsemitones = {s}"),
+            RATE,
+            &x,
+            &[],
+            1,
+        );
         for &o in &onsets {
             let mapped = out.map.apply(o);
             assert!(

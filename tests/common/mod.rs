@@ -154,3 +154,58 @@ pub fn write_wav_float(path: &Path, rate: u32, samples: &[f32]) {
     }
     w.finalize().expect("finish wav");
 }
+
+/// A fixed pseudo-random signal in [-1, 1) (64-bit LCG, Knuth's MMIX constants).
+pub fn noise(n: usize, seed: u64) -> Vec<f32> {
+    let mut state = seed.wrapping_mul(0x9e37_79b9_7f4a_7c15) | 1;
+    (0..n)
+        .map(|_| {
+            state = state
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            (state >> 40) as f32 / (1u64 << 23) as f32 - 1.0
+        })
+        .collect()
+}
+
+/// A plan with the one step `step` (its `[[step]]` keys, `do` included).
+///
+/// # Panics
+/// When the recipe is refused.
+pub fn one_step(step: &str) -> retake::recipe::Plan {
+    retake::recipe::parse(
+        Path::new("test.toml"),
+        &format!("takes = 1\n[[step]]\n{step}\n"),
+    )
+    .unwrap_or_else(|e| panic!("{e}"))
+}
+
+/// Run the one step `step` on `samples` at `rate`, with `words` as both the line and word
+/// spans of the take, from the stream of `seed`.
+///
+/// # Panics
+/// When the recipe is refused or the step fails.
+pub fn apply_step(
+    step: &str,
+    rate: u32,
+    samples: &[f32],
+    words: &[(f64, f64)],
+    seed: u64,
+) -> retake::steps::StepOutput {
+    let plan = one_step(step);
+    let take = retake::steps::TakeContext {
+        lines: words,
+        words,
+    };
+    let audio = retake::audio::Audio {
+        rate,
+        samples: samples.to_vec(),
+    };
+    retake::steps::run_step(
+        plan.steps[0].step.as_ref(),
+        audio,
+        &take,
+        &mut retake::seed::TakeRng::new(seed),
+    )
+    .unwrap_or_else(|e| panic!("{e}"))
+}
