@@ -49,7 +49,7 @@ enum Normalise {
 #[derive(Debug)]
 struct Measured {
     rel_path: String,
-    samples: Vec<f32>,
+    samples: Arc<Vec<f32>>,
     rt60_s: Option<f64>,
 }
 
@@ -183,7 +183,7 @@ fn load_measured(
         }
         out.push(Measured {
             rel_path: f.rel_path.clone(),
-            samples: f.samples.clone(),
+            samples: Arc::new(f.samples.clone()),
             rt60_s: rt60(&f.samples, ctx.rate),
         });
     }
@@ -283,7 +283,7 @@ impl Room {
                     .insert("irs".into(), Value::from(self.folder.clone()));
                 out.drawn
                     .insert("file".into(), Value::from(ir.rel_path.clone()));
-                Ok((Arc::new(ir.samples.clone()), ir.rt60_s))
+                Ok((ir.samples.clone(), ir.rt60_s))
             }
             Source::Simulated(sim) => {
                 let dims = [
