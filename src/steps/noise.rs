@@ -244,19 +244,22 @@ pub fn parse(params: &mut Params<'_>, ctx: &PlanContext<'_>) -> Result<Box<dyn S
     }))
 }
 
-/// Mean power of the speech and of the noise over the chosen stretch.
-fn powers(
-    over: Over,
-    speech: &[f32],
-    noise: &[f32],
-    ranges: &[(usize, usize)],
-    rate: u32,
-) -> (f64, f64) {
+/// Mean power of the speech over the chosen stretch (the power of its P.56 active level for
+/// `Active`).
+fn speech_power(over: Over, speech: &[f32], ranges: &[(usize, usize)], rate: u32) -> f64 {
     if over == Over::Active {
-        let ps = active_speech_level(speech, rate).map_or(0.0, |a| 10f64.powf(a.level_db / 10.0));
-        (ps, power_over(noise, &[(0, noise.len())]).0)
+        active_speech_level(speech, rate).map_or(0.0, |a| 10f64.powf(a.level_db / 10.0))
     } else {
-        (power_over(speech, ranges).0, power_over(noise, ranges).0)
+        power_over(speech, ranges).0
+    }
+}
+
+/// Mean power of the noise over the same stretch as the speech (the whole take for `Active`).
+fn noise_power(over: Over, noise: &[f32], ranges: &[(usize, usize)]) -> f64 {
+    if over == Over::Active {
+        power_over(noise, &[(0, noise.len())]).0
+    } else {
+        power_over(noise, ranges).0
     }
 }
 
@@ -311,7 +314,8 @@ impl Step for Noise {
             ranges
         };
 
-        let mut out = StepOutput::new(audio.clone(), TimeMap::identity(audio.duration()));
+        let duration = audio.duration();
+        let mut out = StepOutput::new(audio, TimeMap::identity(duration));
         out.drawn.insert("snr_db".into(), Value::from(snr_db));
         out.drawn
             .insert("bank".into(), Value::from(self.bank_label.clone()));
@@ -322,6 +326,19 @@ impl Step for Noise {
 
         let fade = (self.crossfade_s * f64::from(rate)).round() as usize;
         let len = file.samples.len();
+        // Speech power does not depend on the excerpt: measured once.
+        let ps = speech_power(over, &out.audio.samples, &ranges, rate);
+        if ps == 0.0 {
+            let reason = format!("speech is silent over its {}: SNR undefined", over.name());
+            if self.reject_silent {
+                return Err(StepError {
+                    step: "noise",
+                    reason,
+                });
+            }
+            out.skipped = Some(reason);
+            return Ok(out);
+        }
         let mut chosen = None;
         for _ in 0..OFFSET_TRIES {
             let u = rng.unit();
@@ -331,24 +348,13 @@ impl Step for Noise {
                 (u * len as f64) as usize
             };
             let noise = excerpt(&file.samples, offset, n, fade);
-            let (ps, pn) = powers(over, &audio.samples, &noise, &ranges, rate);
-            if ps == 0.0 {
-                let reason = format!("speech is silent over its {}: SNR undefined", over.name());
-                if self.reject_silent {
-                    return Err(StepError {
-                        step: "noise",
-                        reason,
-                    });
-                }
-                out.skipped = Some(reason);
-                return Ok(out);
-            }
+            let pn = noise_power(over, &noise, &ranges);
             if pn > 0.0 {
-                chosen = Some((offset, noise, ps, pn));
+                chosen = Some((offset, noise, pn));
                 break;
             }
         }
-        let Some((offset, noise, ps, pn)) = chosen else {
+        let Some((offset, noise, pn)) = chosen else {
             out.skipped = Some(format!(
                 "{} is silent over the speech at {OFFSET_TRIES} offsets",
                 file.rel_path
@@ -361,7 +367,7 @@ impl Step for Noise {
         );
 
         let gain = (ps / (pn * 10f64.powf(snr_db / 10.0))).sqrt();
-        let mut speech = audio.samples;
+        let mut speech = std::mem::take(&mut out.audio.samples);
         let mut noise = scaled(&noise, gain);
         let mut mix = add(&speech, &noise);
         // Clipping guard: speech and noise scaled together, so the ratio stays.
@@ -381,7 +387,10 @@ impl Step for Noise {
             }
         }
         // Measured on the samples the step outputs, in f64.
-        let (ps, pn) = powers(over, &speech, &noise, &ranges, rate);
+        let (ps, pn) = (
+            speech_power(over, &speech, &ranges, rate),
+            noise_power(over, &noise, &ranges),
+        );
         out.measured
             .insert("snr_db".into(), Value::from(10.0 * (ps / pn).log10()));
         out.measured
