@@ -34,6 +34,16 @@ pub struct Gain {
 pub fn parse(params: &mut Params<'_>, ctx: &PlanContext<'_>) -> Result<Box<dyn Step>, RecipeError> {
     let _ = ctx;
     let db = params.draw_within("db", None, DB_LIMITS, "dB")?;
+    let ceiling_db = ceiling_db(params)?;
+    Ok(Box::new(Gain { db, ceiling_db }))
+}
+
+/// The `ceiling_db` key shared by the level-setting steps: a number, default
+/// [`DEFAULT_CEILING_DB`], at most 0 dBFS.
+///
+/// # Errors
+/// A value that is not a number or is above full scale.
+pub fn ceiling_db(params: &mut Params<'_>) -> Result<f64, RecipeError> {
     let ceiling_db = params.number("ceiling_db", DEFAULT_CEILING_DB)?;
     if ceiling_db > 0.0 {
         return Err(params.error(
@@ -41,7 +51,7 @@ pub fn parse(params: &mut Params<'_>, ctx: &PlanContext<'_>) -> Result<Box<dyn S
             format!("{ceiling_db} dBFS is above full scale; the ceiling must be at most 0"),
         ));
     }
-    Ok(Box::new(Gain { db, ceiling_db }))
+    Ok(ceiling_db)
 }
 
 impl Step for Gain {

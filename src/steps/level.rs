@@ -52,13 +52,7 @@ pub fn parse(
             Target::Peak(params.draw_within("peak_dbfs", None, (-60.0, 0.0), "dBFS")?)
         }
     };
-    let ceiling_db = params.number("ceiling_db", -1.0)?;
-    if ceiling_db > 0.0 {
-        return Err(params.error(
-            "ceiling_db",
-            format!("{ceiling_db} dBFS is above full scale; the ceiling must be at most 0"),
-        ));
-    }
+    let ceiling_db = crate::steps::gain::ceiling_db(params)?;
     Ok(Box::new(Level { target, ceiling_db }))
 }
 

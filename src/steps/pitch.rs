@@ -11,7 +11,7 @@ use crate::dsp::resample::speed;
 use crate::dsp::wsola::{WsolaConfig, stretch_by};
 use crate::recipe::{Draw, Params, RecipeError};
 use crate::seed::TakeRng;
-use crate::steps::stretch::anchors_map;
+use crate::steps::stretch::{anchors_map, too_short};
 use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};
 use crate::timemap::TimeMap;
 
@@ -62,11 +62,8 @@ impl Step for Pitch {
         if semitones == 0.0 {
             return Ok(out);
         }
-        if out.audio.samples.len() < cfg.frame_len {
-            out.skipped = Some(format!(
-                "take is shorter than one {} ms WSOLA frame",
-                cfg.frame_len * 1000 / rate as usize
-            ));
+        if let Some(reason) = too_short(out.audio.samples.len(), &cfg, rate) {
+            out.skipped = Some(reason);
             return Ok(out);
         }
         // Tempo slowed by `ratio` (longer), then played `ratio` times faster.

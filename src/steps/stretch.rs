@@ -43,6 +43,16 @@ pub(crate) fn anchors_map(
     })
 }
 
+/// Why a take cannot go through WSOLA, if it is shorter than one frame.
+pub(crate) fn too_short(samples: usize, cfg: &WsolaConfig, rate: u32) -> Option<String> {
+    (samples < cfg.frame_len).then(|| {
+        format!(
+            "take is shorter than one {} ms WSOLA frame",
+            cfg.frame_len * 1000 / rate as usize
+        )
+    })
+}
+
 impl Step for Stretch {
     fn name(&self) -> &'static str {
         "stretch"
@@ -60,11 +70,8 @@ impl Step for Stretch {
         let cfg = WsolaConfig::for_rate(rate);
         let mut out = StepOutput::new(audio, TimeMap::identity(d));
         out.drawn.insert("factor".into(), Value::from(factor));
-        if out.audio.samples.len() < cfg.frame_len {
-            out.skipped = Some(format!(
-                "take is shorter than one {} ms WSOLA frame",
-                cfg.frame_len * 1000 / rate as usize
-            ));
+        if let Some(reason) = too_short(out.audio.samples.len(), &cfg, rate) {
+            out.skipped = Some(reason);
             return Ok(out);
         }
         let done = stretch_by(&out.audio.samples, rate, &cfg, factor);

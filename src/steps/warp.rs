@@ -10,6 +10,7 @@ use crate::dsp::wsola::{WsolaConfig, stretch};
 use crate::recipe::{Draw, Params, RecipeError};
 use crate::seed::TakeRng;
 use crate::steps::mask::preset;
+use crate::steps::stretch::anchors_map;
 use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};
 use crate::timemap::TimeMap;
 
@@ -103,10 +104,8 @@ impl Step for Warp {
         let done = stretch(&out.audio.samples, rate, &cfg, |t| {
             if t < a { before } else { after }
         });
-        out.map = TimeMap::from_knots(done.anchors).map_err(|e| StepError {
-            step: "warp",
-            reason: format!("the stretch gave an unusable time map: {e}"),
-        })?;
+        out.map = anchors_map("warp", done.anchors)?;
+
         out.measured.insert(
             "duration_s".into(),
             Value::from(done.samples.len() as f64 / f64::from(rate)),
