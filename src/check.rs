@@ -53,7 +53,7 @@ pub fn check_manifest(path: &Path) -> std::io::Result<CheckReport> {
 
 fn check_entry(manifest: &Manifest, entry: &Entry) -> (f64, Vec<Problem>) {
     let problem = |field: &str, message: String| Problem {
-        manifest: manifest.path.clone(),
+        file: manifest.path.clone(),
         line: entry.line,
         field: field.to_string(),
         message,

@@ -113,12 +113,12 @@ pub struct Clip {
     pub extra: Map<String, Value>,
 }
 
-/// One thing wrong with one manifest line.
+/// One thing wrong with one line of a manifest or transcript file.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Problem {
-    /// The manifest file.
-    pub manifest: PathBuf,
-    /// 1-based line number in the manifest.
+    /// The file (manifest, WebVTT, TSV, ...).
+    pub file: PathBuf,
+    /// 1-based line number in the file (0 when the problem is the whole file).
     pub line: usize,
     /// The field, as a path (`lines[0].words[2].end`), or empty for the whole line.
     pub field: String,
@@ -128,7 +128,11 @@ pub struct Problem {
 
 impl std::fmt::Display for Problem {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "{} line {}: ", self.manifest.display(), self.line)?;
+        if self.line == 0 {
+            write!(f, "{}: ", self.file.display())?;
+        } else {
+            write!(f, "{} line {}: ", self.file.display(), self.line)?;
+        }
         if !self.field.is_empty() {
             write!(f, "{}: ", self.field)?;
         }
@@ -184,7 +188,7 @@ pub fn read_manifest(path: &Path) -> std::io::Result<Manifest> {
             Ok(clip) => {
                 if let Some(first) = seen.insert(clip.id.clone(), line) {
                     manifest.problems.push(Problem {
-                        manifest: path.to_path_buf(),
+                        file: path.to_path_buf(),
                         line,
                         field: "id".into(),
                         message: format!("`{}` already used on line {first}", clip.id),
@@ -194,7 +198,7 @@ pub fn read_manifest(path: &Path) -> std::io::Result<Manifest> {
                 }
             }
             Err((field, message)) => manifest.problems.push(Problem {
-                manifest: path.to_path_buf(),
+                file: path.to_path_buf(),
                 line,
                 field,
                 message,
