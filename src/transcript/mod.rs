@@ -4,6 +4,8 @@
 //! can be the input of another; takes carry an [`Origin`]. Unknown fields are kept and
 //! written back unchanged.
 
+pub mod tsv;
+
 use std::io::{BufRead, Write};
 use std::path::{Path, PathBuf};
 
