@@ -29,6 +29,7 @@
 pub mod audio;
 pub mod check;
 pub mod dsp;
+pub mod files;
 pub mod noise;
 pub mod recipe;
 pub mod room;

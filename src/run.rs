@@ -15,6 +15,7 @@ use serde::Serialize;
 
 use crate::audio::{self, Audio, SampleFormat};
 use crate::dsp::resample::resample;
+use crate::files::{self, file_stem};
 use crate::recipe::Plan;
 use crate::seed::{TakeRng, step_seed, take_seed};
 use crate::steps::{TakeContext, run_step};
@@ -507,30 +508,6 @@ fn make_take(
     })
 }
 
-/// A file name for a clip id: the id itself when it is plain, else a cleaned id plus a
-/// short hash of the original so two ids never share a file.
-fn file_stem(id: &str) -> String {
-    let clean: String = id
-        .chars()
-        .map(|c| {
-            if c.is_ascii_alphanumeric() || c == '-' || c == '_' || c == '.' {
-                c
-            } else {
-                '_'
-            }
-        })
-        .collect();
-    if clean == id && !id.starts_with('.') {
-        clean
-    } else {
-        format!(
-            "{}-{:08x}",
-            clean.trim_start_matches('.'),
-            take_seed(0, id, 0) as u32
-        )
-    }
-}
-
 /// Write audio to `out/rel` under a temporary name, then rename it into place.
 fn write_wav_atomically(
     out: &Path,
@@ -548,37 +525,13 @@ fn write_wav_atomically(
     Ok(dest)
 }
 
-/// Write a file under a temporary name, then rename it into place.
+/// [`files::write_atomically`] with the output error of a run.
 fn write_atomically(
     path: &Path,
     fill: impl FnOnce(&mut std::io::BufWriter<std::fs::File>) -> std::io::Result<()>,
 ) -> Result<(), RunError> {
-    let err = |source| RunError::Output {
+    files::write_atomically(path, fill).map_err(|source| RunError::Output {
         path: path.to_path_buf(),
         source,
-    };
-    let mut name = path.file_name().unwrap_or_default().to_os_string();
-    name.push(".part");
-    let tmp = path.with_file_name(name);
-    let file = std::fs::File::create(&tmp).map_err(err)?;
-    let mut w = std::io::BufWriter::new(file);
-    fill(&mut w).map_err(err)?;
-    w.flush().map_err(err)?;
-    drop(w);
-    std::fs::rename(&tmp, path).map_err(err)
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn stems_are_safe_and_distinct() {
-        assert_eq!(file_stem("dock-01"), "dock-01");
-        let a = file_stem("north/dock 1");
-        let b = file_stem("north_dock_1");
-        assert!(a.starts_with("north_dock_1-"), "{a}");
-        assert_ne!(a, b);
-        assert!(!file_stem("../x").contains('/'));
-    }
+    })
 }
