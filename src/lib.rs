@@ -28,6 +28,7 @@
 
 pub mod audio;
 pub mod check;
+pub mod cut;
 pub mod dsp;
 pub mod files;
 pub mod noise;

@@ -1,0 +1,244 @@
+//! One source clip through `cut`: check, decode, plan, slice, write. Its audio is dropped
+//! when the clip is done, so memory holds only the clips being worked on.
+
+use super::labels::lines_of;
+use super::plan::{LeftOut, PlannedCut, Reason, plan};
+use super::units::{Units, find_units};
+use super::write::write_wav_atomically;
+use super::{CUTS_DIR, CutReject, CutSpec, LeftOutRecord};
+use crate::audio::{self, Audio};
+use crate::files::file_stem;
+use crate::transcript::{Clip, Entry, Manifest, validate};
+
+/// What one source clip gave.
+#[derive(Debug, Default)]
+pub(super) struct ClipOutcome {
+    /// Output manifest records, in order.
+    pub cuts: Vec<Clip>,
+    /// Stretches that could not be cut within the limits.
+    pub left_out: Vec<LeftOutRecord>,
+    /// Seconds of audio written.
+    pub seconds_out: f64,
+    /// Seconds of speech inside the cuts (an untimed clip counts whole).
+    pub speech_kept: f64,
+    /// Seconds of speech left out.
+    pub speech_left_out: f64,
+}
+
+/// Cut one clip; a clip that cannot be processed is a reject, and none of its cuts remain.
+pub(super) fn cut_clip(
+    spec: &CutSpec<'_>,
+    manifest: &Manifest,
+    entry: &Entry,
+) -> Result<ClipOutcome, CutReject> {
+    let clip = &entry.clip;
+    let reject = |field: &str, reason: String| CutReject {
+        file: manifest.path.display().to_string(),
+        line: entry.line,
+        id: Some(clip.id.clone()),
+        field: field.to_string(),
+        reason,
+    };
+    if let Some((field, reason)) = validate(clip, None).into_iter().next() {
+        return Err(reject(&field, reason));
+    }
+    let path = manifest.base().join(&clip.audio);
+    let source = audio::decode(&path, spec.channels).map_err(|e| reject("audio", e.to_string()))?;
+    if source.samples.is_empty() {
+        return Err(reject("audio", format!("{}: no samples", path.display())));
+    }
+    if let Some((field, reason)) = validate(clip, Some(source.duration())).into_iter().next() {
+        return Err(reject(&field, reason));
+    }
+
+    let rate = f64::from(source.rate);
+    let total = source.samples.len() as u64;
+    let mut outcome = ClipOutcome::default();
+    let (cuts, units) = match &clip.lines {
+        Some(lines) => {
+            let units = find_units(lines, source.rate, total);
+            let p = plan(&units, total, source.rate, &spec.plan(), &clip.id);
+            for l in &p.left_out {
+                let record = left_out_record(spec, entry, &units, l, rate);
+                outcome.speech_left_out += record.1;
+                outcome.left_out.push(record.0);
+            }
+            (p.cuts, Some(units))
+        }
+        None => {
+            let (min, max) = spec.limits.in_samples(source.rate);
+            if (min..=max).contains(&total) {
+                (
+                    vec![PlannedCut {
+                        units: 0..0,
+                        start: 0,
+                        end: total,
+                    }],
+                    None,
+                )
+            } else {
+                let reason = if total > max {
+                    Reason::TooLong
+                } else {
+                    Reason::TooShort
+                };
+                outcome.speech_left_out += source.duration();
+                outcome.left_out.push(LeftOutRecord {
+                    source: clip.id.clone(),
+                    line: entry.line,
+                    start: 0.0,
+                    end: source.duration(),
+                    text: clip.text.clone().unwrap_or_default(),
+                    reason,
+                    detail: untimed_detail(spec, reason, source.duration()),
+                });
+                (Vec::new(), None)
+            }
+        }
+    };
+
+    let stem = file_stem(&clip.id);
+    let mut written = Vec::new();
+    let result = cuts.iter().enumerate().try_for_each(|(k, c)| {
+        let rel = format!("{CUTS_DIR}/{stem}.c{k}.wav");
+        let record = cut_record(clip, units.as_ref(), c, k, &rel, rate);
+        if let Some((field, reason)) = validate(&record, record.duration).into_iter().next() {
+            return Err(reject(
+                &field,
+                format!("cut {k}: label would be invalid: {reason}"),
+            ));
+        }
+        let signal = Audio {
+            rate: source.rate,
+            samples: source.samples[c.start as usize..c.end as usize].to_vec(),
+        };
+        let dest = write_wav_atomically(spec.out, &rel, &signal, spec.format)
+            .map_err(|e| reject("", e))?;
+        written.push(dest);
+        outcome.seconds_out += signal.duration();
+        outcome.speech_kept += match &units {
+            Some(u) => {
+                u.units[c.units.clone()]
+                    .iter()
+                    .map(|u| u.len())
+                    .sum::<u64>() as f64
+                    / rate
+            }
+            None => signal.duration(),
+        };
+        outcome.cuts.push(record);
+        Ok(())
+    });
+    if let Err(r) = result {
+        for f in written {
+            let _ = std::fs::remove_file(f);
+        }
+        return Err(r);
+    }
+    Ok(outcome)
+}
+
+/// The manifest record of cut `k`: labels on the cut's timeline, the source's extra fields,
+/// and where in the source it was taken from.
+fn cut_record(
+    clip: &Clip,
+    units: Option<&Units>,
+    c: &PlannedCut,
+    k: usize,
+    rel: &str,
+    rate: f64,
+) -> Clip {
+    let (start, end) = (c.start as f64 / rate, c.end as f64 / rate);
+    let duration = (c.end - c.start) as f64 / rate;
+    let lines = match (&clip.lines, units) {
+        (Some(lines), Some(u)) => Some(lines_of(lines, &u.units[c.units.clone()], start, duration)),
+        _ => None,
+    };
+    let mut extra = clip.extra.clone();
+    extra.insert(
+        "cut".into(),
+        serde_json::json!({
+            "source": clip.id,
+            "audio": clip.audio,
+            "start": start,
+            "end": end,
+        }),
+    );
+    Clip {
+        id: format!("{}.c{k}", clip.id),
+        audio: rel.to_string(),
+        text: if lines.is_none() {
+            clip.text.clone()
+        } else {
+            None
+        },
+        lines,
+        duration: Some(duration),
+        origin: None,
+        extra,
+    }
+}
+
+/// A left-out stretch as reported, and its seconds of speech.
+fn left_out_record(
+    spec: &CutSpec<'_>,
+    entry: &Entry,
+    units: &Units,
+    l: &LeftOut,
+    rate: f64,
+) -> (LeftOutRecord, f64) {
+    let clip = &entry.clip;
+    let lines = lines_of(
+        clip.lines.as_deref().unwrap_or_default(),
+        &units.units[l.units.clone()],
+        0.0,
+        f64::INFINITY,
+    );
+    let speech = units.units[l.units.clone()]
+        .iter()
+        .map(|u| u.len())
+        .sum::<u64>() as f64
+        / rate;
+    let detail = match l.reason {
+        Reason::TooLong => format!(
+            "{speech:.3} s of speech with no gap of silence is longer than the longest cut ({} s)",
+            spec.limits.longest
+        ),
+        Reason::TooShort => format!(
+            "{speech:.3} s of speech cannot reach the shortest cut ({} s) with the silence \
+             around it, nor join a neighbour within the longest ({} s)",
+            spec.limits.shortest, spec.limits.longest
+        ),
+    };
+    let record = LeftOutRecord {
+        source: clip.id.clone(),
+        line: entry.line,
+        start: lines.iter().map(|l| l.start).fold(f64::INFINITY, f64::min),
+        end: lines
+            .iter()
+            .map(|l| l.end)
+            .fold(f64::NEG_INFINITY, f64::max),
+        text: lines
+            .iter()
+            .map(|l| l.text.as_str())
+            .collect::<Vec<_>>()
+            .join(" "),
+        reason: l.reason,
+        detail,
+    };
+    (record, speech)
+}
+
+fn untimed_detail(spec: &CutSpec<'_>, reason: Reason, seconds: f64) -> String {
+    match reason {
+        Reason::TooLong => format!(
+            "untimed clip of {seconds:.3} s is longer than the longest cut ({} s) and has no \
+             timings to cut at",
+            spec.limits.longest
+        ),
+        Reason::TooShort => format!(
+            "untimed clip of {seconds:.3} s is shorter than the shortest cut ({} s)",
+            spec.limits.shortest
+        ),
+    }
+}

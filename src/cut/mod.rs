@@ -1,0 +1,223 @@
+//! `cut`: long recordings into training clips, cut only in the silence between words.
+//!
+//! Per clip: check the labels, decode, check them against the audio's length, find the
+//! stretches no cut may split ([`units`]), choose the cuts ([`plan`], whose doc states the
+//! rule), then slice the audio at whole samples, at the source's own rate, and move the
+//! labels to each cut's timeline ([`labels`]). A clip without timings (bare `text`) becomes
+//! one cut when its length is within the limits.
+//!
+//! Clips run in parallel, and every pad is drawn from a stream fixed by (seed, clip id,
+//! gap), so the output is byte-identical for any thread count. Files are written under a
+//! temporary name and renamed. Speech that cannot be cut within the limits goes to
+//! `left_out.jsonl`; a clip that cannot be processed at all goes to `rejects.jsonl`, and
+//! the run goes on. A whole recording is decoded into memory while its clip is worked on.
+
+mod clip;
+pub mod labels;
+pub mod plan;
+pub mod units;
+mod write;
+
+use std::path::Path;
+use std::time::Instant;
+
+use rayon::prelude::*;
+use serde::Serialize;
+
+use crate::audio::{ChannelPolicy, SampleFormat};
+use crate::files;
+use crate::run::{MANIFEST_NAME, REJECTS_NAME, RunError};
+use crate::transcript::{read_manifest, write_manifest};
+use plan::{Limits, PadRange, PlanSpec, Reason};
+
+/// Folder for cut audio inside the output folder.
+pub const CUTS_DIR: &str = "cuts";
+/// Name of the left-out report inside the output folder.
+pub const LEFT_OUT_NAME: &str = "left_out.jsonl";
+
+/// What to cut and how.
+#[derive(Debug, Clone)]
+pub struct CutSpec<'a> {
+    /// Input manifest.
+    pub input: &'a Path,
+    /// Output folder (created if needed).
+    pub out: &'a Path,
+    /// Shortest and longest cut, padding included.
+    pub limits: Limits,
+    /// Padding drawn per side.
+    pub pad: PadRange,
+    /// Seed of the pad draws.
+    pub seed: u64,
+    /// Sample format of the written cuts.
+    pub format: SampleFormat,
+    /// How a multichannel source becomes one channel.
+    pub channels: ChannelPolicy,
+    /// Worker threads; `None` for one per core.
+    pub threads: Option<usize>,
+}
+
+impl CutSpec<'_> {
+    fn plan(&self) -> PlanSpec {
+        PlanSpec {
+            limits: self.limits,
+            pad: self.pad,
+            seed: self.seed,
+        }
+    }
+}
+
+/// One line of `left_out.jsonl`: a stretch of a source that no cut holds.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct LeftOutRecord {
+    /// Source clip id.
+    pub source: String,
+    /// Line of the input manifest.
+    pub line: usize,
+    /// Start in the source, seconds (the labels' own times).
+    pub start: f64,
+    /// End in the source, seconds.
+    pub end: f64,
+    /// What was said there: the texts of the lines, or parts of lines, it holds.
+    pub text: String,
+    /// `too_long` or `too_short`.
+    pub reason: Reason,
+    /// The reason in words, with the lengths involved.
+    pub detail: String,
+}
+
+/// One line of `rejects.jsonl`: a clip that could not be cut at all.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct CutReject {
+    /// The manifest.
+    pub file: String,
+    /// Line of the manifest.
+    pub line: usize,
+    /// Clip id, when the line got that far.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub id: Option<String>,
+    /// The field at fault, when one is.
+    #[serde(skip_serializing_if = "String::is_empty")]
+    pub field: String,
+    /// What went wrong.
+    pub reason: String,
+}
+
+/// Figures for the closing summary.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct CutSummary {
+    /// Manifest lines read.
+    pub clips_in: usize,
+    /// Clips processed (possibly into no cuts).
+    pub clips_cut: usize,
+    /// Clips (and unreadable lines) in `rejects.jsonl`.
+    pub rejected: usize,
+    /// Cuts written.
+    pub cuts: usize,
+    /// Seconds of audio written.
+    pub seconds_out: f64,
+    /// Seconds of speech inside the cuts: the union of the label spans, widened to whole
+    /// samples; an untimed clip counts whole.
+    pub speech_kept: f64,
+    /// Stretches in `left_out.jsonl`.
+    pub left_out: usize,
+    /// Seconds of speech in them.
+    pub speech_left_out: f64,
+    /// Wall-clock seconds.
+    pub wall_seconds: f64,
+}
+
+/// Cut every clip of a manifest.
+///
+/// # Errors
+/// Only run-wide failures (manifest unreadable, output not writable, no threads); a bad
+/// clip is a reject and a stretch that does not fit is left out, neither is an error.
+pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
+    let started = Instant::now();
+    let manifest = read_manifest(spec.input).map_err(|source| RunError::Manifest {
+        path: spec.input.to_path_buf(),
+        source,
+    })?;
+    let dir = spec.out.join(CUTS_DIR);
+    let output = |source| RunError::Output {
+        path: dir.clone(),
+        source,
+    };
+    std::fs::create_dir_all(&dir).map_err(output)?;
+    write::remove_partial_files(&dir).map_err(output)?;
+    let threads = spec.threads.unwrap_or(0);
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .map_err(|e| RunError::Threads {
+            threads,
+            reason: e.to_string(),
+        })?;
+    let results: Vec<_> = pool.install(|| {
+        manifest
+            .entries
+            .par_iter()
+            .map(|entry| clip::cut_clip(spec, &manifest, entry))
+            .collect()
+    });
+
+    let mut summary = CutSummary {
+        clips_in: manifest.entries.len() + manifest.problems.len(),
+        ..CutSummary::default()
+    };
+    let mut rejects: Vec<CutReject> = manifest
+        .problems
+        .iter()
+        .map(|p| CutReject {
+            file: p.file.display().to_string(),
+            line: p.line,
+            id: None,
+            field: p.field.clone(),
+            reason: p.message.clone(),
+        })
+        .collect();
+    let (mut cuts, mut left_out) = (Vec::new(), Vec::new());
+    for result in results {
+        match result {
+            Ok(done) => {
+                summary.clips_cut += 1;
+                summary.cuts += done.cuts.len();
+                summary.seconds_out += done.seconds_out;
+                summary.speech_kept += done.speech_kept;
+                summary.speech_left_out += done.speech_left_out;
+                cuts.extend(done.cuts);
+                left_out.extend(done.left_out);
+            }
+            Err(r) => rejects.push(r),
+        }
+    }
+    rejects.sort_by_key(|r| r.line);
+    summary.rejected = rejects.len();
+    summary.left_out = left_out.len();
+    write_file(&spec.out.join(MANIFEST_NAME), |w| write_manifest(w, &cuts))?;
+    write_jsonl(&spec.out.join(LEFT_OUT_NAME), &left_out)?;
+    write_jsonl(&spec.out.join(REJECTS_NAME), &rejects)?;
+    summary.wall_seconds = started.elapsed().as_secs_f64();
+    Ok(summary)
+}
+
+fn write_jsonl<T: Serialize>(path: &Path, records: &[T]) -> Result<(), RunError> {
+    use std::io::Write;
+    write_file(path, |w| {
+        for r in records {
+            serde_json::to_writer(&mut *w, r)?;
+            w.write_all(b"\n")?;
+        }
+        Ok(())
+    })
+}
+
+/// [`files::write_atomically`] with the output error of a run.
+fn write_file(
+    path: &Path,
+    fill: impl FnOnce(&mut std::io::BufWriter<std::fs::File>) -> std::io::Result<()>,
+) -> Result<(), RunError> {
+    files::write_atomically(path, fill).map_err(|source| RunError::Output {
+        path: path.to_path_buf(),
+        source,
+    })
+}
