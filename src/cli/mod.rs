@@ -2,6 +2,7 @@
 
 mod bank;
 mod check;
+mod cut;
 mod run;
 
 use std::path::PathBuf;
@@ -66,6 +67,8 @@ enum Command {
         )]
         held_out: f64,
     },
+    /// Split long recordings into clips between two lengths, only in gaps between words.
+    Cut(cut::CutArgs),
     /// Run the bundled recipe on the bundled demo clips (a cold-store warehouse).
     Demo {
         /// Output folder.
@@ -94,6 +97,7 @@ pub fn main() -> ExitCode {
             rate,
             held_out,
         } => bank::bank(&dir, rate, held_out),
+        Command::Cut(args) => cut::cut(args),
         Command::Demo { out, threads } => {
             let demo = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo_audio");
             run::run(

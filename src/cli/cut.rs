@@ -1,0 +1,130 @@
+//! `retake cut`: parse the options, cut, print one closing summary.
+
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+
+use retake::audio::{ChannelPolicy, SampleFormat};
+use retake::cut::plan::{Limits, PadRange};
+use retake::cut::{self, CutSpec, CutSummary, LEFT_OUT_NAME};
+use retake::run::{MANIFEST_NAME, REJECTS_NAME};
+
+/// Options of `retake cut`.
+#[derive(Debug, clap::Args)]
+pub struct CutArgs {
+    /// Input manifest (JSON Lines, one clip per line).
+    manifest: PathBuf,
+    /// Output folder: cuts/, manifest.jsonl, left_out.jsonl and rejects.jsonl are written here.
+    #[arg(long, short)]
+    out: PathBuf,
+    /// Shortest cut in seconds, padding included.
+    #[arg(long, value_name = "SECONDS", default_value_t = 2.0)]
+    shortest: f64,
+    /// Longest cut in seconds, padding included.
+    #[arg(long, value_name = "SECONDS", default_value_t = 15.0)]
+    longest: f64,
+    /// Silence kept on each side of the speech, seconds: a value or LOW..HIGH drawn
+    /// uniformly per gap. Never more than half the gap to the next word.
+    #[arg(long, value_name = "SECONDS", default_value = "0.2", value_parser = parse_pad)]
+    pad: (f64, f64),
+    /// Seed of the pad draws.
+    #[arg(long, default_value_t = 0)]
+    seed: u64,
+    /// Write 32-bit float WAV instead of 16-bit PCM.
+    #[arg(long)]
+    float: bool,
+    /// Worker threads (default: one per core).
+    #[arg(long, short = 'j')]
+    threads: Option<usize>,
+    /// Multichannel input: `mix` (mean of channels) or a channel number from 0.
+    #[arg(long, default_value = "mix", value_parser = super::parse_channels)]
+    channels: ChannelPolicy,
+}
+
+/// `0.2` or `0.1..0.3` as (low, high); ranges are checked by the library.
+fn parse_pad(s: &str) -> Result<(f64, f64), String> {
+    let number = |t: &str| {
+        t.trim()
+            .parse::<f64>()
+            .map_err(|_| format!("`{s}`: expected seconds (0.2) or a range LOW..HIGH (0.1..0.3)"))
+    };
+    match s.split_once("..") {
+        Some((low, high)) => Ok((number(low)?, number(high)?)),
+        None => number(s).map(|x| (x, x)),
+    }
+}
+
+/// Run `retake cut`.
+pub fn cut(args: CutArgs) -> ExitCode {
+    let checked = Limits::new(args.shortest, args.longest)
+        .and_then(|limits| PadRange::new(args.pad.0, args.pad.1).map(|pad| (limits, pad)));
+    let (limits, pad) = match checked {
+        Ok(v) => v,
+        Err(e) => {
+            eprintln!("retake: cut: {e}");
+            return ExitCode::from(2);
+        }
+    };
+    let spec = CutSpec {
+        input: &args.manifest,
+        out: &args.out,
+        limits,
+        pad,
+        seed: args.seed,
+        format: if args.float {
+            SampleFormat::Float32
+        } else {
+            SampleFormat::Pcm16
+        },
+        channels: args.channels,
+        threads: args.threads,
+    };
+    match cut::cut(&spec) {
+        Err(e) => {
+            eprintln!("retake: {e}");
+            ExitCode::FAILURE
+        }
+        Ok(summary) => {
+            print_summary(&summary, &args.out);
+            if summary.rejected > 0 || summary.left_out > 0 {
+                ExitCode::from(super::EXIT_REJECTS)
+            } else {
+                ExitCode::SUCCESS
+            }
+        }
+    }
+}
+
+fn print_summary(s: &CutSummary, out: &Path) {
+    println!(
+        "{} clips in, {} cuts out ({:.3} h of audio), {:.3} h of speech kept, {} stretches \
+         left out ({:.1} s of speech), {} rejected; {:.1} s",
+        s.clips_in,
+        s.cuts,
+        s.seconds_out / 3600.0,
+        s.speech_kept / 3600.0,
+        s.left_out,
+        s.speech_left_out,
+        s.rejected,
+        s.wall_seconds
+    );
+    println!("output    {}", out.join(MANIFEST_NAME).display());
+    if s.left_out > 0 {
+        println!("left out  {}", out.join(LEFT_OUT_NAME).display());
+    }
+    if s.rejected > 0 {
+        println!("rejects   {}", out.join(REJECTS_NAME).display());
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::parse_pad;
+
+    #[test]
+    fn pad_is_a_value_or_a_range() {
+        assert_eq!(parse_pad("0.2"), Ok((0.2, 0.2)));
+        assert_eq!(parse_pad("0.05..0.4"), Ok((0.05, 0.4)));
+        assert!(parse_pad("0.1..").is_err());
+        assert!(parse_pad("wide").is_err());
+    }
+}
