@@ -2,6 +2,8 @@
 //! PyPI, pinned in `tests/reference/requirements.txt`) and signal exchange with it.
 #![allow(dead_code)]
 
+pub mod session;
+
 use std::path::{Path, PathBuf};
 use std::process::Command;
 

@@ -1,0 +1,553 @@
+//! `retake cut` end to end on a long session built from the demo (tests/common/session.rs)
+//! and on small made-up clips: limits, words kept whole and in place, samples equal to the
+//! source's (read back by soundfile), word energy inside the rewritten timings, left-out
+//! stretches, rejects and thread-count independence.
+
+mod common;
+
+use std::path::Path;
+
+use common::session::{self, RATE, Session};
+use common::{read_jsonl, retake, run_python};
+use retake::audio::{self, ChannelPolicy};
+use serde_json::Value;
+
+/// Run `retake cut` on `manifest` into `out` with extra options; (exit code, stdout).
+fn cut(manifest: &Path, out: &Path, options: &[&str]) -> (Option<i32>, String) {
+    let mut args = vec![
+        "cut",
+        manifest.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+    ];
+    args.extend_from_slice(options);
+    let o = retake(&args);
+    assert!(
+        o.status.code().is_some_and(|c| c == 0 || c == 3),
+        "retake cut failed: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    (
+        o.status.code(),
+        String::from_utf8_lossy(&o.stdout).to_string(),
+    )
+}
+
+fn f(v: &Value) -> f64 {
+    v.as_f64().unwrap_or_else(|| panic!("not a number: {v}"))
+}
+
+/// Words of a cut record as (start, end, text), in its own timeline.
+fn cut_words(c: &Value) -> Vec<(f64, f64, String)> {
+    c["lines"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .flat_map(|l| l["words"].as_array().cloned().unwrap_or_default())
+        .map(|w| {
+            (
+                f(&w["start"]),
+                f(&w["end"]),
+                w["text"].as_str().unwrap().into(),
+            )
+        })
+        .collect()
+}
+
+/// Mean power of `x` over [a, b) seconds (clipped to the audio); as tests/demo_alignment.rs.
+fn power(x: &[f32], rate: u32, a: f64, b: f64) -> f64 {
+    let i = ((a * f64::from(rate)).round().max(0.0) as usize).min(x.len());
+    let j = ((b * f64::from(rate)).round().max(0.0) as usize).min(x.len());
+    if j <= i {
+        return 0.0;
+    }
+    x[i..j].iter().map(|&s| f64::from(s).powi(2)).sum::<f64>() / (j - i) as f64
+}
+
+/// Per word: how much louder (dB, negative = quieter) the 40 ms just outside it are than the
+/// word, margins stopping at the neighbouring words; as tests/demo_alignment.rs.
+fn outside_minus_inside_db(x: &[f32], rate: u32, words: &[(f64, f64)]) -> Vec<f64> {
+    const MARGIN: f64 = 0.04;
+    words
+        .iter()
+        .enumerate()
+        .map(|(i, &(s, e))| {
+            let from = if i > 0 {
+                (s - MARGIN).max(words[i - 1].1)
+            } else {
+                s - MARGIN
+            };
+            let to = if i + 1 < words.len() {
+                (e + MARGIN).min(words[i + 1].0)
+            } else {
+                e + MARGIN
+            };
+            let inside = power(x, rate, s, e);
+            let outside = power(x, rate, from, s).max(power(x, rate, e, to));
+            10.0 * (outside.max(1e-12) / inside).log10()
+        })
+        .collect()
+}
+
+/// Everything a cut of the session must satisfy, for limits `shortest..=longest`.
+/// `float`: the cuts were written as float WAV (samples must be equal), else 16-bit PCM.
+fn check_session_cuts(s: &Session, out: &Path, shortest: f64, longest: f64, float: bool) {
+    let cuts = read_jsonl(&out.join("manifest.jsonl"));
+    assert!(cuts.len() >= 12, "only {} cuts", cuts.len());
+    let source_words = s.words();
+    let mut words_back = Vec::new();
+    let mut split_lines = 0;
+    for (k, c) in cuts.iter().enumerate() {
+        assert_eq!(c["id"], format!("fjellvik-night-shift.c{k}"));
+        assert_eq!(c["audio"], format!("cuts/fjellvik-night-shift.c{k}.wav"));
+        assert_eq!(c["site"], "fjellvik-cold-store");
+        assert_eq!(c["shift"], "night");
+        let (d, from, to) = (
+            f(&c["duration"]),
+            f(&c["cut"]["start"]),
+            f(&c["cut"]["end"]),
+        );
+        assert_eq!(c["cut"]["source"], "fjellvik-night-shift");
+        assert_eq!(c["cut"]["audio"], "session.wav");
+        assert!(
+            d >= shortest - 1e-9 && d <= longest + 1e-9,
+            "cut {k}: {d} s outside {shortest}..{longest}"
+        );
+        assert!((to - from - d).abs() < 1e-9);
+        for t in [from, to] {
+            let n = t * f64::from(RATE);
+            assert!(
+                (n - n.round()).abs() < 1e-6,
+                "cut {k}: {t} s is not on a sample"
+            );
+        }
+        for line in c["lines"].as_array().unwrap() {
+            let (ls, le) = (f(&line["start"]), f(&line["end"]));
+            assert!(
+                0.0 <= ls && ls <= le && le <= d,
+                "cut {k}: line {ls}..{le} of {d}"
+            );
+            let words = line["words"].as_array().unwrap();
+            for w in words {
+                let (ws, we) = (f(&w["start"]), f(&w["end"]));
+                assert!(
+                    ls <= ws && ws <= we && we <= le,
+                    "cut {k}: word outside its line"
+                );
+            }
+            let joined: Vec<&str> = words.iter().map(|w| w["text"].as_str().unwrap()).collect();
+            let from_clip = line["from"].as_str().expect("line fields are kept");
+            assert!(line["speaker"].is_string() && line["round"].is_u64());
+            let whole =
+                s.clip.lines.as_ref().unwrap().iter().any(|l| {
+                    l.text == line["text"].as_str().unwrap() && l.words.len() == words.len()
+                });
+            if !whole {
+                // A part of a split line: its text is its words' texts.
+                assert_eq!(line["text"], joined.join(" "), "cut {k} ({from_clip})");
+                split_lines += 1;
+            }
+        }
+        for (ws, we, text) in cut_words(c) {
+            words_back.push((ws + from, we + from, text));
+        }
+    }
+
+    // Every word of the session, once, in order, at its own time.
+    assert_eq!(words_back.len(), source_words.len());
+    let (mut sum_in, mut sum_out) = (0.0, 0.0);
+    for (got, want) in words_back.iter().zip(&source_words) {
+        assert_eq!(got.2, want.2);
+        assert!((got.0 - want.0).abs() < 1e-9 && (got.1 - want.1).abs() < 1e-9);
+        sum_in += want.1 - want.0;
+        sum_out += got.1 - got.0;
+    }
+    // Total word time kept, within 1 ms per word (the brief's tolerance).
+    assert!((sum_in - sum_out).abs() < 1e-3 * source_words.len() as f64);
+
+    // Cuts in order and apart.
+    for w in cuts.windows(2) {
+        assert!(f(&w[0]["cut"]["end"]) <= f(&w[1]["cut"]["start"]) + 1e-12);
+    }
+
+    samples_match_the_session(s, out, &cuts, float);
+    energy_lies_inside_words(s, out, &cuts);
+    if longest < 3.0 {
+        assert!(split_lines >= 4, "only {split_lines} split lines");
+    }
+}
+
+/// Each cut's samples equal the session's from its `cut.start`, read by soundfile.
+/// Reference: soundfile (libsndfile) reading both files; numpy compares. Float cuts must be
+/// equal; 16-bit cuts hold round(x · 32767) (the scale documented on retake's writer), so
+/// within half a step plus float rounding. Control: one sample later the match must fail.
+fn samples_match_the_session(s: &Session, out: &Path, cuts: &[Value], float: bool) {
+    let list: Vec<Value> = cuts
+        .iter()
+        .map(|c| {
+            serde_json::json!({
+                "path": out.join(c["audio"].as_str().unwrap()),
+                "start": f(&c["cut"]["start"]),
+                "duration": f(&c["duration"]),
+            })
+        })
+        .collect();
+    let list_path = out.join("check-list.json");
+    std::fs::write(&list_path, serde_json::to_string(&list).unwrap()).unwrap();
+    let code = r#"
+import json, sys
+import numpy as np, soundfile as sf
+x, sr = sf.read(sys.argv[1], dtype="float64")
+pcm = sys.argv[3] == "pcm"
+rows = []
+for c in json.load(open(sys.argv[2])):
+    y, r = sf.read(c["path"], dtype="int16" if pcm else "float64")
+    y = y.astype(np.float64)
+    start = int(round(c["start"] * sr))
+    scale = 32767.0 if pcm else 1.0
+    ref = x[start:start + len(y)] * scale
+    later = x[start + 1:start + 1 + len(y)] * scale
+    n = min(len(later), len(y))
+    rows.append([r, len(y), int(round(c["duration"] * sr)), len(ref),
+                 float(np.max(np.abs(y - ref))) if len(ref) == len(y) else 1e9,
+                 float(np.max(np.abs(y[:n] - later[:n])))])
+print(json.dumps(rows))
+"#;
+    let mode = if float { "float" } else { "pcm" };
+    let rows: Vec<Vec<f64>> = serde_json::from_str(&run_python(
+        code,
+        &[s.audio.to_str().unwrap(), list_path.to_str().unwrap(), mode],
+    ))
+    .unwrap();
+    std::fs::remove_file(list_path).unwrap();
+    for (k, row) in rows.iter().enumerate() {
+        assert_eq!(row[0], f64::from(RATE), "cut {k}: rate");
+        assert_eq!(row[1], row[2], "cut {k}: length vs duration");
+        assert_eq!(row[1], row[3], "cut {k}: runs past the session");
+        if float {
+            assert_eq!(row[4], 0.0, "cut {k}: samples differ from the session");
+        } else {
+            assert!(row[4] <= 0.51, "cut {k}: {} steps from the session", row[4]);
+        }
+        // One sample late, speech-bearing audio differs by far more than rounding.
+        assert!(
+            row[5] > 50.0 * if float { 1.0 / 32767.0 } else { 1.0 },
+            "cut {k}: {row:?}"
+        );
+    }
+}
+
+/// Each word is at least 12 dB above the 40 ms around it in the cut (the threshold and the
+/// method of tests/demo_alignment.rs; the words are the demo's synthesis ground truth).
+/// Control: the session's own timings, not rewritten, fail on most words of the same audio.
+fn energy_lies_inside_words(s: &Session, out: &Path, cuts: &[Value]) {
+    let (mut checked, mut stale_failures) = (0, 0);
+    for c in cuts {
+        let a = audio::decode(&out.join(c["audio"].as_str().unwrap()), ChannelPolicy::Mix).unwrap();
+        let words: Vec<(f64, f64)> = cut_words(c).iter().map(|w| (w.0, w.1)).collect();
+        for (i, db) in outside_minus_inside_db(&a.samples, a.rate, &words)
+            .into_iter()
+            .enumerate()
+        {
+            assert!(
+                db < -12.0,
+                "{} word {i}: outside only {db:.1} dB below",
+                c["id"]
+            );
+            checked += 1;
+        }
+        let from = f(&c["cut"]["start"]);
+        let stale: Vec<(f64, f64)> = words.iter().map(|w| (w.0 + from, w.1 + from)).collect();
+        stale_failures += outside_minus_inside_db(&a.samples, a.rate, &stale)
+            .into_iter()
+            .filter(|&db| db >= -12.0)
+            .count();
+    }
+    assert_eq!(checked, s.words().len());
+    assert!(
+        stale_failures * 2 >= checked,
+        "control too weak: {stale_failures}/{checked}"
+    );
+}
+
+#[test]
+fn a_long_session_is_cut_within_the_limits_with_every_word_kept_in_place() {
+    let tmp = tempfile::tempdir().unwrap();
+    let s = session::build(tmp.path(), 180.0);
+    assert!(s.samples as f64 / f64::from(RATE) >= 180.0);
+    let out = tmp.path().join("out");
+    let (code, stdout) = cut(&s.manifest, &out, &[]);
+    assert_eq!(code, Some(0), "{stdout}");
+    assert_eq!(
+        std::fs::read_to_string(out.join("left_out.jsonl")).unwrap(),
+        ""
+    );
+    assert_eq!(
+        std::fs::read_to_string(out.join("rejects.jsonl")).unwrap(),
+        ""
+    );
+    assert!(stdout.contains("1 clips in"), "{stdout}");
+    check_session_cuts(&s, &out, 2.0, 15.0, false);
+}
+
+#[test]
+fn tight_limits_split_lines_between_words_and_float_cuts_equal_the_source() {
+    let tmp = tempfile::tempdir().unwrap();
+    let s = session::build(tmp.path(), 180.0);
+    let out = tmp.path().join("out");
+    let options = [
+        "--shortest",
+        "1",
+        "--longest",
+        "2.5",
+        "--pad",
+        "0.05..0.3",
+        "--seed",
+        "9",
+        "--float",
+    ];
+    let (code, stdout) = cut(&s.manifest, &out, &options);
+    assert_eq!(code, Some(0), "{stdout}");
+    check_session_cuts(&s, &out, 1.0, 2.5, true);
+}
+
+#[test]
+fn output_is_the_same_byte_for_byte_on_one_or_two_threads() {
+    let tmp = tempfile::tempdir().unwrap();
+    let s = session::build(tmp.path(), 180.0);
+    // A second clip so that two workers have something to share.
+    let mut text = std::fs::read_to_string(&s.manifest).unwrap();
+    text.push_str(&text.replace("fjellvik-night-shift", "fjellvik-day-shift"));
+    std::fs::write(&s.manifest, text).unwrap();
+    let options = ["--pad", "0.05..0.4", "--seed", "3", "--longest", "9"];
+    let (one, two) = (tmp.path().join("one"), tmp.path().join("two"));
+    cut(&s.manifest, &one, &[&options[..], &["-j", "1"]].concat());
+    cut(&s.manifest, &two, &[&options[..], &["-j", "2"]].concat());
+    let (a, b) = (files_under(&one), files_under(&two));
+    assert!(a.len() > 20, "{} files", a.len());
+    assert_eq!(
+        a.iter().map(|f| &f.0).collect::<Vec<_>>(),
+        b.iter().map(|f| &f.0).collect::<Vec<_>>()
+    );
+    for (x, y) in a.iter().zip(&b) {
+        assert!(x.1 == y.1, "{} differs", x.0);
+    }
+    // The drawn pads do vary: the silence before the first word differs among cuts.
+    let leads: Vec<f64> = read_jsonl(&one.join("manifest.jsonl"))
+        .iter()
+        .map(|c| f(&c["lines"][0]["start"]))
+        .collect();
+    let spread = leads.iter().cloned().fold(f64::NEG_INFINITY, f64::max)
+        - leads.iter().cloned().fold(f64::INFINITY, f64::min);
+    assert!(spread > 0.1, "pads do not vary: {leads:?}");
+}
+
+fn files_under(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut out = Vec::new();
+    let mut stack = vec![dir.to_path_buf()];
+    while let Some(d) = stack.pop() {
+        for e in std::fs::read_dir(d).unwrap() {
+            let p = e.unwrap().path();
+            if p.is_dir() {
+                stack.push(p);
+            } else {
+                let name = p.strip_prefix(dir).unwrap().display().to_string();
+                out.push((name, std::fs::read(&p).unwrap()));
+            }
+        }
+    }
+    out.sort();
+    out
+}
+
+/// Room tone with 300 Hz bursts standing in for speech over `spans` (seconds).
+fn bursts(rate: u32, secs: f64, spans: &[(f64, f64)]) -> Vec<f32> {
+    let tone = common::noise((secs * f64::from(rate)) as usize, 5);
+    tone.iter()
+        .enumerate()
+        .map(|(i, &n)| {
+            let t = i as f64 / f64::from(rate);
+            let on = spans.iter().any(|&(a, b)| a <= t && t < b);
+            let s = if on {
+                0.4 * (2.0 * std::f64::consts::PI * 300.0 * t).sin()
+            } else {
+                0.0
+            };
+            s as f32 + 0.003 * n
+        })
+        .collect()
+}
+
+#[test]
+fn a_line_without_words_longer_than_the_longest_is_left_out_and_the_rest_comes_through() {
+    let tmp = tempfile::tempdir().unwrap();
+    let spans = [
+        (0.5, 1.0),
+        (1.2, 1.8),
+        (2.5, 20.5),
+        (22.0, 22.9),
+        (23.1, 24.0),
+    ];
+    common::write_wav_pcm16(
+        &tmp.path().join("yard.wav"),
+        16_000,
+        &bursts(16_000, 25.0, &spans),
+    );
+    let clip = serde_json::json!({
+        "id": "yard-tannoy", "audio": "yard.wav", "site": "fjellvik-cold-store",
+        "lines": [
+            {"start": 0.5, "end": 1.8, "text": "gate seven", "speaker": "ruben",
+             "words": [{"start": 0.5, "end": 1.0, "text": "gate"}, {"start": 1.2, "end": 1.8, "text": "seven"}]},
+            {"start": 2.5, "end": 20.5, "text": "attention all drivers the north yard closes at six for gritting"},
+            {"start": 22.0, "end": 24.0, "text": "copy that", "speaker": "ruben",
+             "words": [{"start": 22.0, "end": 22.9, "text": "copy"}, {"start": 23.1, "end": 24.0, "text": "that"}]}
+        ]
+    });
+    let manifest = tmp.path().join("in.jsonl");
+    std::fs::write(&manifest, clip.to_string() + "\n").unwrap();
+    let out = tmp.path().join("out");
+    let (code, stdout) = cut(&manifest, &out, &[]);
+    assert_eq!(code, Some(3), "{stdout}");
+    assert!(stdout.contains("1 stretches left out"), "{stdout}");
+    let left = read_jsonl(&out.join("left_out.jsonl"));
+    assert_eq!(left.len(), 1);
+    assert_eq!(left[0]["source"], "yard-tannoy");
+    assert_eq!(left[0]["line"], 1);
+    assert_eq!((f(&left[0]["start"]), f(&left[0]["end"])), (2.5, 20.5));
+    assert_eq!(
+        left[0]["text"],
+        "attention all drivers the north yard closes at six for gritting"
+    );
+    assert_eq!(left[0]["reason"], "too_long");
+    // The rest comes through: "gate seven" (1.3 s of speech; 0.5 s of silence before and
+    // 0.35 s, half the gap, after reach the 2 s shortest) and "copy that".
+    let cuts = read_jsonl(&out.join("manifest.jsonl"));
+    let texts: Vec<&str> = cuts
+        .iter()
+        .map(|c| c["lines"][0]["text"].as_str().unwrap())
+        .collect();
+    assert_eq!(texts, ["gate seven", "copy that"]);
+    let first = &cuts[0];
+    assert!((f(&first["duration"]) - 2.0).abs() < 1e-9);
+    assert!(f(&first["cut"]["end"]) <= 1.8 + 0.35 + 1e-9);
+    assert_eq!(first["site"], "fjellvik-cold-store");
+    assert_eq!(
+        std::fs::read_to_string(out.join("rejects.jsonl")).unwrap(),
+        ""
+    );
+}
+
+#[test]
+fn bad_clips_are_rejected_by_file_line_and_field_and_the_others_are_cut() {
+    let tmp = tempfile::tempdir().unwrap();
+    let demo = read_jsonl(&common::demo().join("manifest.jsonl"));
+    let absolute = |c: &Value| {
+        let mut c = c.clone();
+        c["audio"] = Value::from(
+            common::demo()
+                .join(c["audio"].as_str().unwrap())
+                .to_str()
+                .unwrap(),
+        );
+        c
+    };
+    let good = absolute(&demo[0]);
+    // pick-b-001 is 8.29 s long; its last line now ends at 12 s.
+    let mut long = absolute(&demo[1]);
+    long["lines"][2]["end"] = Value::from(12.0);
+    long["lines"][2]["words"][2]["end"] = Value::from(12.0);
+    let mut missing = absolute(&demo[2]);
+    missing["audio"] = Value::from(tmp.path().join("nowhere.wav").to_str().unwrap());
+    let untimed = absolute(demo.iter().find(|c| c["text"].is_string()).unwrap());
+    let lines = [
+        good.to_string(),
+        long.to_string(),
+        missing.to_string(),
+        untimed.to_string(),
+        r#"{"id": "half-written", "audio": "#.to_string(),
+    ];
+    let manifest = tmp.path().join("in.jsonl");
+    std::fs::write(&manifest, lines.join("\n") + "\n").unwrap();
+    let out = tmp.path().join("out");
+    let (code, stdout) = cut(&manifest, &out, &[]);
+    assert_eq!(code, Some(3), "{stdout}");
+    assert!(stdout.contains("3 rejected"), "{stdout}");
+    let rejects = read_jsonl(&out.join("rejects.jsonl"));
+    let named: Vec<(u64, &str)> = rejects
+        .iter()
+        .map(|r| {
+            (
+                r["line"].as_u64().unwrap(),
+                r["field"].as_str().unwrap_or(""),
+            )
+        })
+        .collect();
+    // The cut-off line names the field it was in when the text ended.
+    assert_eq!(named, [(2, "lines[2].end"), (3, "audio"), (5, "audio")]);
+    for r in &rejects {
+        assert_eq!(r["file"], manifest.to_str().unwrap());
+    }
+    assert!(
+        rejects[0]["reason"]
+            .as_str()
+            .unwrap()
+            .contains("past the end")
+    );
+    let cuts = read_jsonl(&out.join("manifest.jsonl"));
+    let sources: Vec<&str> = cuts
+        .iter()
+        .map(|c| c["cut"]["source"].as_str().unwrap())
+        .collect();
+    assert!(sources.contains(&"pick-a-001"), "{sources:?}");
+    // The untimed clip (5.97 s) is one whole cut with its text.
+    let whole: Vec<&Value> = cuts
+        .iter()
+        .filter(|c| c["cut"]["source"] == untimed["id"])
+        .collect();
+    assert_eq!(whole.len(), 1);
+    assert_eq!(whole[0]["text"], untimed["text"]);
+    assert_eq!(f(&whole[0]["cut"]["start"]), 0.0);
+    assert!((f(&whole[0]["duration"]) - 95_566.0 / 16_000.0).abs() < 1e-9);
+    assert!(out.join(whole[0]["audio"].as_str().unwrap()).is_file());
+}
+
+#[test]
+fn an_untimed_clip_too_long_is_left_out_and_bad_options_are_usage_errors() {
+    let tmp = tempfile::tempdir().unwrap();
+    let demo = read_jsonl(&common::demo().join("manifest.jsonl"));
+    let mut untimed = demo.iter().find(|c| c["text"].is_string()).unwrap().clone();
+    untimed["audio"] = Value::from(
+        common::demo()
+            .join(untimed["audio"].as_str().unwrap())
+            .to_str()
+            .unwrap(),
+    );
+    let manifest = tmp.path().join("in.jsonl");
+    std::fs::write(&manifest, untimed.to_string() + "\n").unwrap();
+    let out = tmp.path().join("out");
+    let (code, _) = cut(&manifest, &out, &["--longest", "4"]);
+    assert_eq!(code, Some(3));
+    let left = read_jsonl(&out.join("left_out.jsonl"));
+    assert_eq!(left.len(), 1);
+    assert_eq!(left[0]["reason"], "too_long");
+    assert_eq!(left[0]["text"], untimed["text"]);
+    assert_eq!(read_jsonl(&out.join("manifest.jsonl")).len(), 0);
+
+    for bad in [
+        &["--shortest", "5", "--longest", "4"][..],
+        &["--pad", "0.3..0.1"],
+        &["--pad=-0.1"],
+        &["--longest", "0"],
+    ] {
+        let mut args = vec![
+            "cut",
+            manifest.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+        ];
+        args.extend_from_slice(bad);
+        let o = retake(&args);
+        assert_eq!(o.status.code(), Some(2), "{bad:?}");
+        assert!(!String::from_utf8_lossy(&o.stderr).is_empty());
+    }
+}
