@@ -65,36 +65,14 @@ pub(super) fn cut_clip(
             }
             (p.cuts, Some(units))
         }
-        None => {
-            let (min, max) = spec.limits.in_samples(source.rate);
-            if (min..=max).contains(&total) {
-                (
-                    vec![PlannedCut {
-                        units: 0..0,
-                        start: 0,
-                        end: total,
-                    }],
-                    None,
-                )
-            } else {
-                let reason = if total > max {
-                    Reason::TooLong
-                } else {
-                    Reason::TooShort
-                };
-                outcome.speech_left_out += source.duration();
-                outcome.left_out.push(LeftOutRecord {
-                    source: clip.id.clone(),
-                    line: entry.line,
-                    start: 0.0,
-                    end: source.duration(),
-                    text: clip.text.clone().unwrap_or_default(),
-                    reason,
-                    detail: untimed_detail(spec, reason, source.duration()),
-                });
+        None => match untimed(spec, entry, total, source.rate) {
+            Ok(whole) => (vec![whole], None),
+            Err(left) => {
+                outcome.speech_left_out += left.end;
+                outcome.left_out.push(left);
                 (Vec::new(), None)
             }
-        }
+        },
     };
 
     let stem = file_stem(&clip.id);
@@ -229,8 +207,29 @@ fn left_out_record(
     (record, speech)
 }
 
-fn untimed_detail(spec: &CutSpec<'_>, reason: Reason, seconds: f64) -> String {
-    match reason {
+/// A clip without timings: one whole cut when its length is within the limits, else the
+/// whole clip left out.
+fn untimed(
+    spec: &CutSpec<'_>,
+    entry: &Entry,
+    total: u64,
+    rate: u32,
+) -> Result<PlannedCut, LeftOutRecord> {
+    let (min, max) = spec.limits.in_samples(rate);
+    if (min..=max).contains(&total) {
+        return Ok(PlannedCut {
+            units: 0..0,
+            start: 0,
+            end: total,
+        });
+    }
+    let seconds = total as f64 / f64::from(rate);
+    let reason = if total > max {
+        Reason::TooLong
+    } else {
+        Reason::TooShort
+    };
+    let detail = match reason {
         Reason::TooLong => format!(
             "untimed clip of {seconds:.3} s is longer than the longest cut ({} s) and has no \
              timings to cut at",
@@ -240,5 +239,14 @@ fn untimed_detail(spec: &CutSpec<'_>, reason: Reason, seconds: f64) -> String {
             "untimed clip of {seconds:.3} s is shorter than the shortest cut ({} s)",
             spec.limits.shortest
         ),
-    }
+    };
+    Err(LeftOutRecord {
+        source: entry.clip.id.clone(),
+        line: entry.line,
+        start: 0.0,
+        end: seconds,
+        text: entry.clip.text.clone().unwrap_or_default(),
+        reason,
+        detail,
+    })
 }
