@@ -14,6 +14,8 @@ use serde_json::{Map, Value};
 
 use crate::timemap::TimeMap;
 
+pub mod webvtt;
+
 /// Timings may lie past the audio's end by this much (seconds) before it is a problem: a
 /// tenth of a millisecond, below one sample at 8 kHz, absorbs rounding in hand-made labels.
 pub const END_TOLERANCE_S: f64 = 1e-4;
