@@ -1,28 +1,11 @@
 //! The recipes shown in the docs are real: every ```toml block with `takes =` in README.md
 //! and docs/*.md parses, and the demo recipe parses.
 
-use std::path::{Path, PathBuf};
+mod common;
 
-fn root() -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-}
+use std::path::Path;
 
-fn toml_blocks(text: &str) -> Vec<(usize, String)> {
-    let mut out = Vec::new();
-    let mut current: Option<(usize, String)> = None;
-    for (i, line) in text.lines().enumerate() {
-        match (&mut current, line.trim_start()) {
-            (None, l) if l.starts_with("```toml") => current = Some((i + 1, String::new())),
-            (Some(_), l) if l.starts_with("```") => out.push(current.take().unwrap()),
-            (Some((_, body)), _) => {
-                body.push_str(line);
-                body.push('\n');
-            }
-            _ => {}
-        }
-    }
-    out
-}
+use common::root;
 
 #[test]
 fn documented_recipes_parse() {
@@ -36,7 +19,7 @@ fn documented_recipes_parse() {
     let mut parsed = 0;
     for doc in docs {
         let text = std::fs::read_to_string(&doc).unwrap();
-        for (line, body) in toml_blocks(&text) {
+        for (line, body) in common::fenced_blocks(&text, "toml") {
             if body.contains("takes =") {
                 if let Err(e) = retake::recipe::parse(Path::new("example.toml"), &body) {
                     panic!(

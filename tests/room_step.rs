@@ -53,18 +53,9 @@ fn click_clip(dir: &Path) -> (PathBuf, Vec<f64>) {
     (m, times)
 }
 
-/// Onset of the click expected near `t`: the first sample within ±20 ms whose magnitude
-/// reaches half the largest magnitude in that window (the direct sound, since the
-/// response is normalised to a direct peak of 1).
-fn onset_near(y: &[f32], t: f64) -> f64 {
-    let w = (0.02 * f64::from(RATE)) as usize;
-    let c = (t * f64::from(RATE)).round() as usize;
-    let (a, b) = (c.saturating_sub(w), (c + w).min(y.len()));
-    let max = y[a..b].iter().fold(0.0f32, |m, s| m.max(s.abs()));
-    let i = (a..b).find(|&i| y[i].abs() >= 0.5 * max).unwrap();
-    i as f64 / f64::from(RATE)
-}
-
+/// Every click's onset (the first sample within ±20 ms reaching half the largest magnitude
+/// there: the direct sound, since the response is normalised to a direct peak of 1) against
+/// its rewritten timing.
 fn check_onsets(dir: &Path, takes: &[Value], clicks: &[f64]) {
     for take in takes {
         let y = read_wav(&dir.join("out").join(take["audio"].as_str().unwrap()));
@@ -77,7 +68,7 @@ fn check_onsets(dir: &Path, takes: &[Value], clicks: &[f64]) {
             assert!(start <= d && line["end"].as_f64().unwrap() <= d);
             // The click's own onset: the raised cosine reaches half its peak 4 samples
             // (0.25 ms) after it starts; within 1 ms of the rewritten timing (the bound).
-            let onset = onset_near(&y, start) - 4.0 / f64::from(RATE);
+            let onset = common::onset_near(&y, RATE, start, 0.5) - 4.0 / f64::from(RATE);
             assert!(
                 (onset - start).abs() <= 0.001,
                 "{}: click at {start:.4} s has onset {onset:.4} s",

@@ -3,6 +3,9 @@
 mod bank;
 mod check;
 mod cut;
+mod export;
+mod import;
+mod remap;
 mod run;
 
 use std::path::PathBuf;
@@ -10,6 +13,7 @@ use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 use retake::audio::ChannelPolicy;
+use retake::export::Format;
 
 /// Exit status when the run finished but some clips went to the rejects file.
 pub const EXIT_REJECTS: u8 = 3;
@@ -69,6 +73,43 @@ enum Command {
     },
     /// Split long recordings into clips between two lengths, only in gaps between words.
     Cut(cut::CutArgs),
+    /// Make a manifest from a folder of recordings with transcripts of the same name beside
+    /// them (.vtt WebVTT, .tsv word rows, .txt untimed text).
+    Import {
+        /// The folder (walked with its subfolders).
+        dir: PathBuf,
+        /// The manifest to write [default: DIR/manifest.jsonl].
+        #[arg(long, short)]
+        out: Option<PathBuf>,
+        /// Multichannel audio: `mix` or a channel number from 0 (used to measure length).
+        #[arg(long, value_parser = parse_channels, default_value = "mix")]
+        channels: ChannelPolicy,
+    },
+    /// Write each clip's transcript as WebVTT or TSV, beside its audio or into a folder.
+    Export {
+        /// The manifest (source clips or takes).
+        manifest: PathBuf,
+        /// Format: `vtt` or `tsv`; give it twice for both.
+        #[arg(long, short = 't', value_parser = parse_format, default_value = "vtt")]
+        to: Vec<Format>,
+        /// Folder to write into, files named by clip id [default: beside each audio file].
+        #[arg(long, short)]
+        out: Option<PathBuf>,
+        /// Overwrite files that already exist.
+        #[arg(long)]
+        replace: bool,
+    },
+    /// Carry other annotations of the source clips (TSV spans, WebVTT) to the takes of a
+    /// run, through the time maps in its manifest.
+    Remap {
+        /// The run's output manifest (takes).
+        manifest: PathBuf,
+        /// Folder holding `<source id>.tsv` and/or `<source id>.vtt`.
+        labels: PathBuf,
+        /// Folder to write `<take>.tsv` / `<take>.vtt` into.
+        #[arg(long, short)]
+        out: PathBuf,
+    },
     /// Run the bundled recipe on the bundled demo clips (a cold-store warehouse).
     Demo {
         /// Output folder.
@@ -98,6 +139,18 @@ pub fn main() -> ExitCode {
             held_out,
         } => bank::bank(&dir, rate, held_out),
         Command::Cut(args) => cut::cut(args),
+        Command::Import { dir, out, channels } => import::import(&dir, out.as_deref(), channels),
+        Command::Export {
+            manifest,
+            to,
+            out,
+            replace,
+        } => export::export(&manifest, &to, out.as_deref(), replace),
+        Command::Remap {
+            manifest,
+            labels,
+            out,
+        } => remap::run(&manifest, &labels, &out),
         Command::Demo { out, threads } => {
             let demo = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo_audio");
             run::run(
@@ -118,6 +171,14 @@ fn parse_channels(s: &str) -> Result<ChannelPolicy, String> {
     s.parse::<usize>()
         .map(ChannelPolicy::Pick)
         .map_err(|_| format!("`{s}`: expected `mix` or a channel number counted from 0"))
+}
+
+fn parse_format(s: &str) -> Result<Format, String> {
+    match s {
+        "vtt" | "webvtt" => Ok(Format::WebVtt),
+        "tsv" => Ok(Format::Tsv),
+        _ => Err(format!("`{s}`: expected `vtt` or `tsv`")),
+    }
 }
 
 fn parse_fraction(s: &str) -> Result<f64, String> {

@@ -212,7 +212,14 @@ fn seconds(s: &str) -> Result<f64, &'static str> {
 /// # Errors
 /// Every problem found, each naming `path` and the line.
 pub fn read_lines(path: &Path, text: &str) -> Result<Vec<Line>, Vec<Problem>> {
-    let table = parse(path, text)?;
+    lines_of(path, &parse(path, text)?)
+}
+
+/// A parsed table as transcript lines; `path` names the file in problems.
+///
+/// # Errors
+/// Rows out of order, overlapping words, unnamed extra columns.
+pub fn lines_of(path: &Path, table: &Table) -> Result<Vec<Line>, Vec<Problem>> {
     let names: Vec<String> = table.header.clone().unwrap_or_default();
     let speaker_col = names.iter().position(|n| n == "speaker");
     let mut problems = Vec::new();

@@ -211,3 +211,34 @@ pub fn apply_step(
     )
     .unwrap_or_else(|e| panic!("{e}"))
 }
+
+/// The bodies of the fenced code blocks of one language (```` ```toml ````, ```` ```sh ````)
+/// in a Markdown text, each with the 1-based line of its opening fence.
+pub fn fenced_blocks(text: &str, lang: &str) -> Vec<(usize, String)> {
+    let fence = format!("```{lang}");
+    let mut out = Vec::new();
+    let mut current: Option<(usize, String)> = None;
+    for (i, line) in text.lines().enumerate() {
+        match (&mut current, line.trim_start()) {
+            (None, l) if l == fence => current = Some((i + 1, String::new())),
+            (Some(_), l) if l.starts_with("```") => out.push(current.take().unwrap()),
+            (Some((_, body)), _) => {
+                body.push_str(line);
+                body.push('\n');
+            }
+            _ => {}
+        }
+    }
+    out
+}
+
+/// The onset near `t` s: the first sample within ±20 ms of it whose magnitude reaches
+/// `fraction` of the largest magnitude in that window.
+pub fn onset_near(y: &[f32], rate: u32, t: f64, fraction: f32) -> f64 {
+    let w = (0.02 * f64::from(rate)) as usize;
+    let c = (t * f64::from(rate)).round() as usize;
+    let (a, b) = (c.saturating_sub(w), (c + w).min(y.len()));
+    let max = y[a..b].iter().fold(0.0f32, |m, s| m.max(s.abs()));
+    let i = (a..b).find(|&i| y[i].abs() >= fraction * max).unwrap();
+    i as f64 / f64::from(rate)
+}

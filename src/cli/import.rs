@@ -1,0 +1,60 @@
+//! `retake import`: a folder of recordings and transcripts to a manifest.
+
+use std::path::Path;
+use std::process::ExitCode;
+
+use retake::audio::ChannelPolicy;
+use retake::files::write_atomically;
+use retake::import::import_folder;
+use retake::transcript::write_manifest;
+
+pub fn import(dir: &Path, manifest: Option<&Path>, channels: ChannelPolicy) -> ExitCode {
+    let default = dir.join("manifest.jsonl");
+    let manifest = manifest.unwrap_or(&default);
+    let base = manifest.parent().filter(|p| !p.as_os_str().is_empty());
+    let base = base.unwrap_or(Path::new("."));
+    if let Err(e) = std::fs::create_dir_all(base) {
+        eprintln!("retake: {}: {e}", base.display());
+        return ExitCode::FAILURE;
+    }
+    let found = match import_folder(dir, base, channels) {
+        Ok(f) => f,
+        Err(e) => {
+            eprintln!("retake: {}: cannot read folder: {e}", dir.display());
+            return ExitCode::from(2);
+        }
+    };
+    for p in &found.problems {
+        eprintln!("{p}");
+    }
+    if found.clips.is_empty() {
+        eprintln!(
+            "retake: {}: no recording with a usable transcript; nothing written",
+            dir.display()
+        );
+        return ExitCode::from(2);
+    }
+    if let Err(e) = write_atomically(manifest, |w| write_manifest(w, &found.clips)) {
+        eprintln!("retake: {}: {e}", manifest.display());
+        return ExitCode::FAILURE;
+    }
+    let seconds: f64 = found.clips.iter().filter_map(|c| c.duration).sum();
+    let timed = found.clips.iter().filter(|c| c.lines.is_some()).count();
+    println!(
+        "imported {} clips ({timed} timed, {} untimed), {:.3} h of audio",
+        found.clips.len(),
+        found.clips.len() - timed,
+        seconds / 3600.0
+    );
+    println!("output   {}", manifest.display());
+    if found.problems.is_empty() {
+        ExitCode::SUCCESS
+    } else {
+        println!(
+            "left out {} problem{} above (file and line named on each)",
+            found.problems.len(),
+            if found.problems.len() == 1 { "" } else { "s" }
+        );
+        ExitCode::from(super::EXIT_REJECTS)
+    }
+}

@@ -1,0 +1,57 @@
+//! `retake remap`: other annotations of the source clips carried to the takes.
+
+use std::path::Path;
+use std::process::ExitCode;
+
+use retake::remap::remap;
+use retake::transcript::read_manifest;
+
+pub fn run(manifest: &Path, labels: &Path, out: &Path) -> ExitCode {
+    let read = match read_manifest(manifest) {
+        Ok(m) => m,
+        Err(e) => {
+            eprintln!("retake: {}: cannot read manifest: {e}", manifest.display());
+            return ExitCode::from(2);
+        }
+    };
+    if !labels.is_dir() {
+        eprintln!("retake: {}: not a folder of annotations", labels.display());
+        return ExitCode::from(2);
+    }
+    let report = match remap(&read, labels, out) {
+        Ok(r) => r,
+        Err(e) => {
+            eprintln!("retake: {}: {e}", out.display());
+            return ExitCode::FAILURE;
+        }
+    };
+    for p in &report.problems {
+        eprintln!("{p}");
+    }
+    for id in &report.missing {
+        eprintln!(
+            "{}: no annotation for source clip `{id}` (looked for {id}.tsv and {id}.vtt)",
+            labels.display()
+        );
+    }
+    println!(
+        "wrote {} files for {} takes into {}",
+        report.written.len(),
+        report.takes,
+        out.display()
+    );
+    if report.collapsed > 0 {
+        println!(
+            "{} spans fell inside stretches a step removed and have zero length now (WebVTT cues \
+             among them were dropped)",
+            report.collapsed
+        );
+    }
+    // Sources without an annotation are normal (not every clip was phone-labelled): listed,
+    // not failed.
+    if report.problems.is_empty() {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(super::EXIT_REJECTS)
+    }
+}

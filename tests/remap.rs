@@ -1,0 +1,157 @@
+//! `retake remap`: an annotation that is not the transcript (here a burst-train TSV) follows
+//! speed perturbation and a simulated room to within 2 ms of the bursts' measured onsets.
+
+mod common;
+
+use std::path::Path;
+
+use common::{read_jsonl, retake, run_recipe, write_wav_float};
+
+const RATE: u32 = 16_000;
+
+/// Irregular burst starts (seconds) over a 4 s clip; each burst is 20 ms of a 2 kHz tone
+/// with a 1 ms raised-cosine attack and release.
+const BURSTS: [f64; 8] = [0.3, 0.75, 1.1, 1.62, 2.05, 2.5, 3.01, 3.4];
+const BURST_S: f64 = 0.02;
+
+fn burst_clip(dir: &Path) {
+    let mut x = vec![0.0f32; 4 * RATE as usize];
+    let ramp = (0.001 * f64::from(RATE)) as usize;
+    let len = (BURST_S * f64::from(RATE)) as usize;
+    for &t in &BURSTS {
+        let at = (t * f64::from(RATE)).round() as usize;
+        for k in 0..len {
+            let edge = k.min(len - 1 - k);
+            let g = if edge < ramp {
+                0.5 * (1.0 - (std::f64::consts::PI * edge as f64 / ramp as f64).cos())
+            } else {
+                1.0
+            };
+            let phase = 2.0 * std::f64::consts::PI * 2000.0 * k as f64 / f64::from(RATE);
+            x[at + k] = (0.4 * g * phase.sin()) as f32;
+        }
+    }
+    write_wav_float(&dir.join("bursts.wav"), RATE, &x);
+    // An untimed clip: the transcript says nothing about the bursts; only remap moves them.
+    std::fs::write(
+        dir.join("in.jsonl"),
+        r#"{"id":"yard/bursts","audio":"bursts.wav","text":"reversing beeper test"}"#.to_string()
+            + "\n",
+    )
+    .unwrap();
+    let labels = dir.join("labels/yard");
+    std::fs::create_dir_all(&labels).unwrap();
+    let mut tsv = String::from("start\tend\tlabel\tchannel\n");
+    for (i, t) in BURSTS.iter().enumerate() {
+        tsv += &format!("{t}\t{}\tbeep{i}\tleft\n", t + BURST_S);
+    }
+    std::fs::write(labels.join("bursts.tsv"), tsv).unwrap();
+}
+
+fn read_wav(path: &Path) -> Vec<f32> {
+    let mut r = hound::WavReader::open(path).unwrap();
+    r.samples::<i16>()
+        .map(|s| f32::from(s.unwrap()) / 32768.0)
+        .collect()
+}
+
+#[test]
+fn burst_annotation_follows_speed_and_room_to_two_ms() {
+    let tmp = tempfile::tempdir().unwrap();
+    burst_clip(tmp.path());
+    let recipe = "takes = 4\nseed = 11\nkeep_source = true\n[[step]]\ndo = \"speed\"\nfactor = [0.9, 1.1]\n[[step]]\ndo = \"room\"\nwidth_m = { low = 3.0, high = 8.0 }\nlength_m = { low = 3.0, high = 10.0 }\nheight_m = 3.0\nrt60_s = { low = 0.3, high = 0.6 }\n";
+    let (code, err, takes) = run_recipe(tmp.path(), recipe, &tmp.path().join("in.jsonl"));
+    assert_eq!(code, Some(0), "{err}");
+    assert_eq!(takes.len(), 4);
+    let out = tmp.path().join("moved");
+    let o = retake(&[
+        "remap",
+        tmp.path().join("out/manifest.jsonl").to_str().unwrap(),
+        tmp.path().join("labels").to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let mut worst: f64 = 0.0;
+    let mut factors = Vec::new();
+    for take in &takes {
+        let id = take["id"].as_str().unwrap();
+        let y = read_wav(&tmp.path().join("out").join(take["audio"].as_str().unwrap()));
+        let moved = out.join(format!("{}.tsv", retake::files::file_stem(id)));
+        let text = std::fs::read_to_string(&moved).unwrap();
+        let rows: Vec<Vec<&str>> = text
+            .lines()
+            .skip(1)
+            .map(|l| l.split('\t').collect())
+            .collect();
+        assert_eq!(rows.len(), BURSTS.len(), "{text}");
+        for (i, row) in rows.iter().enumerate() {
+            // Labels and extra columns come through untouched.
+            assert_eq!((row[2], row[3]), (format!("beep{i}").as_str(), "left"));
+            let start: f64 = row[0].parse().unwrap();
+            let end: f64 = row[1].parse().unwrap();
+            // The measured onset: the first sample within ±20 ms that reaches a quarter of the
+            // largest magnitude there. The room is normalised to a direct peak of 1, so the
+            // direct sound crosses that level within the burst's 1 ms attack even when
+            // reflections add up to twice its amplitude later in the burst.
+            let onset = common::onset_near(&y, RATE, start, 0.25);
+            worst = worst.max((onset - start).abs());
+            // The issue's bound: within 2 ms of the measured onset.
+            assert!(
+                (onset - start).abs() <= 0.002,
+                "{id}: burst {i} annotated at {start:.4} s, measured onset {onset:.4} s"
+            );
+            // Duration follows the speed factor (room trimming shifts, never stretches).
+            let f = take["origin"]["steps"]
+                .get(0)
+                .and_then(|s| s["drawn"]["factor"].as_f64())
+                .unwrap_or(1.0);
+            assert!(
+                ((end - start) - BURST_S / f).abs() < 2e-6,
+                "{end} - {start} at {f}"
+            );
+            factors.push(f);
+        }
+    }
+    assert!(
+        factors.contains(&0.9) && factors.contains(&1.1),
+        "both speeds drawn: {factors:?}"
+    );
+    eprintln!("worst onset error {:.3} ms", worst * 1e3);
+}
+
+#[test]
+fn missing_annotations_and_non_takes_are_listed() {
+    let tmp = tempfile::tempdir().unwrap();
+    burst_clip(tmp.path());
+    std::fs::remove_file(tmp.path().join("labels/yard/bursts.tsv")).unwrap();
+    let recipe = "takes = 1\n[[step]]\ndo = \"gain\"\ndb = -3.0\n";
+    let (code, err, _) = run_recipe(tmp.path(), recipe, &tmp.path().join("in.jsonl"));
+    assert_eq!(code, Some(0), "{err}");
+    // The source manifest is not a run's output: its line is named.
+    let o = retake(&[
+        "remap",
+        tmp.path().join("in.jsonl").to_str().unwrap(),
+        tmp.path().join("labels").to_str().unwrap(),
+        "-o",
+        tmp.path().join("moved").to_str().unwrap(),
+    ]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(3), "{err}");
+    assert!(err.contains("in.jsonl line 1: origin:"), "{err}");
+    let o = retake(&[
+        "remap",
+        tmp.path().join("out/manifest.jsonl").to_str().unwrap(),
+        tmp.path().join("labels").to_str().unwrap(),
+        "-o",
+        tmp.path().join("moved").to_str().unwrap(),
+    ]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    // Listed, but not a failure: not every clip has every kind of annotation.
+    assert_eq!(o.status.code(), Some(0), "{err}");
+    assert!(
+        err.contains("no annotation for source clip `yard/bursts`"),
+        "{err}"
+    );
+    assert!(read_jsonl(&tmp.path().join("out/manifest.jsonl")).len() == 1);
+}
