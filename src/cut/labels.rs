@@ -7,7 +7,7 @@ use super::units::Unit;
 use crate::transcript::{Line, Word};
 
 /// The lines (or parts of lines) whose labels lie in `units`, in line order, with every
-/// time `t` rewritten as `t - offset` and held inside `[0, duration]`.
+/// time `t` rewritten as `t - offset` (to the nanosecond) and held inside `[0, duration]`.
 ///
 /// A line the run holds whole keeps everything as it was. A part of a split line keeps the
 /// line's speaker and extra fields; its text is its words' texts joined by spaces, and it
@@ -15,7 +15,9 @@ use crate::transcript::{Line, Word};
 /// word.
 pub fn lines_of(lines: &[Line], units: &[Unit], offset: f64, duration: f64) -> Vec<Line> {
     let at = |t: f64| {
-        let x = t - offset;
+        // Rounded to the nanosecond, far below a sample, so a manifest reads 1.154625 rather
+        // than the subtraction's 1.1546249999999998; rounding is monotone, order is kept.
+        let x = ((t - offset) * 1e9).round() / 1e9;
         // `x <= 0` also catches -0.0, written as +0.0 as a manifest should say; times are
         // finite (validated), so there is no NaN to fall through.
         if x <= 0.0 { 0.0 } else { x.min(duration) }
