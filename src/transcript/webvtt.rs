@@ -162,8 +162,10 @@ impl Document {
         out
     }
 }
+
 /// A WebVTT file as transcript lines: one line per cue, text and speaker from [`cue_text`],
-/// no words (a cue's inline timestamps give word starts but no ends).
+/// no words (a cue's inline timestamps give word starts but no ends). Cue identifiers and
+/// settings, NOTE, STYLE and REGION blocks are not carried over.
 ///
 /// # Errors
 /// Each a [`Problem`] naming `path` and the file line: every [`SyntaxError`], plus every pair
@@ -184,12 +186,12 @@ pub fn read_lines(path: &Path, text: &str) -> Result<Vec<Line>, Vec<Problem>> {
     let cues: Vec<(&Cue, CueText)> = doc.cues().map(|c| (c, cue_text(&c.text))).collect();
     // Earlier cues still running at the current cue's start (cues come in start order).
     let mut running: Vec<usize> = Vec::new();
-    for (k, (cue, words)) in cues.iter().enumerate() {
+    for (k, (cue, plain)) in cues.iter().enumerate() {
         running.retain(|&o| cues[o].0.end > cue.start);
         for &o in &running {
-            let (earlier, earlier_words) = &cues[o];
+            let (earlier, earlier_plain) = &cues[o];
             let cross_talk = matches!(
-                (&earlier_words.speaker, &words.speaker),
+                (&earlier_plain.speaker, &plain.speaker),
                 (Some(a), Some(b)) if a != b
             );
             if !cross_talk {
@@ -213,11 +215,11 @@ pub fn read_lines(path: &Path, text: &str) -> Result<Vec<Line>, Vec<Problem>> {
     }
     Ok(cues
         .into_iter()
-        .map(|(cue, words)| Line {
+        .map(|(cue, plain)| Line {
             start: cue.start,
             end: cue.end,
-            text: words.text,
-            speaker: words.speaker,
+            text: plain.text,
+            speaker: plain.speaker,
             words: Vec::new(),
             extra: Map::new(),
         })
@@ -227,7 +229,8 @@ pub fn read_lines(path: &Path, text: &str) -> Result<Vec<Line>, Vec<Problem>> {
 /// Transcript lines as a WebVTT file: `WEBVTT`, a blank line, then one cue per line,
 /// `hh:mm:ss.mmm --> hh:mm:ss.mmm` (rounded to the millisecond) and a one-line payload:
 /// `<v speaker>` when the line has a speaker, then the text, with `&`, `<` and `>` escaped
-/// (so no markup and no `-->` can come from the text) and line breaks as spaces.
+/// (so no markup and no `-->` can come from the text) and line breaks as spaces. The payload
+/// is always one line, so the cue of `lines[k]` has its timing line on line `3 + 3k`.
 ///
 /// Words are not written: WebVTT has inline timestamps for word starts but nothing for word
 /// ends. Lines are written as given: a line shorter than a millisecond, lines out of order or
