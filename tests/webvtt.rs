@@ -925,6 +925,8 @@ fn structure_errors_name_their_line() {
     assert!(m.contains("blank line"), "{m}");
     // ... and right after the header.
     assert_eq!(one_error("WEBVTT\n00:01.000 --> 00:02.000\na\n").0, 2);
+    // A STYLE block with no blank line after the signature would be read as header text.
+    assert_eq!(one_error("WEBVTT\nSTYLE\n::cue { color: lime }\n").0, 2);
     // A stray block, a duplicate identifier, a bad inline timestamp and one outside its cue.
     assert_eq!(one_error("WEBVTT\n\nhello there\n").0, 3);
     assert_eq!(
@@ -1279,6 +1281,26 @@ proptest! {
         lines[k - 1].end = lines[k].start + 0.002;
         // Line k + 1 starts at or after line k's end, itself 2 ms or more past the new end.
         prop_assert_eq!(problem_lines(&write_lines(&lines)), [3 + 3 * k]);
+    }
+
+    #[test]
+    fn any_text_gets_an_answer_with_lines_inside_the_file(
+        pieces in prop::collection::vec(prop::sample::select(vec![
+            "WEBVTT", "\n", "\n\n", "\r\n", "\r", "-->", " --> ", " ", "\t", "00:01.000",
+            "01:00:00.500", "00:61.000", "NOTE", "STYLE", "REGION", "id:x", " region:x",
+            " align:start", "<v A B>", "</v>", "<", ">", "&", "&#", "&amp;", "<00:00:01.000>",
+            "<ruby>", "<rt>", "é", "\u{feff}", "\0", ":", ".", "1",
+        ]), 0..60),
+    ) {
+        let text = pieces.concat();
+        let last = text.replace("\r\n", "\n").replace('\r', "\n").split('\n').count();
+        match parse(&text) {
+            Ok(d) => prop_assert!(d.cues().all(|c| (1..=last).contains(&c.line))),
+            Err(e) => prop_assert!(e.iter().all(|e| (1..=last).contains(&e.line)), "{:?}", e),
+        }
+        if let Err(problems) = read_lines(vtt_path(), &text) {
+            prop_assert!(problems.iter().all(|p| (1..=last).contains(&p.line)));
+        }
     }
 
     #[test]
