@@ -1,7 +1,10 @@
-//! Output files: names made from clip ids, and writes that never leave half a file.
+//! Output files: names made from clip ids, and writes (text or WAV) that never leave half a
+//! file.
 
 use std::io::Write;
-use std::path::Path;
+use std::path::{Path, PathBuf};
+
+use crate::audio::{self, Audio, SampleFormat};
 
 use crate::seed::take_seed;
 
@@ -53,6 +56,30 @@ pub fn write_atomically(
         let _ = std::fs::remove_file(&tmp);
     }
     result
+}
+
+/// Write `signal` to `out/rel` as `out/rel.part`, then rename it into place. The error names
+/// the file.
+///
+/// # Errors
+/// Encoding or renaming; the `.part` file is removed.
+pub fn write_wav_atomically(
+    out: &Path,
+    rel: &str,
+    signal: &Audio,
+    format: SampleFormat,
+) -> Result<PathBuf, String> {
+    let dest = out.join(rel);
+    let tmp = out.join(format!("{rel}.part"));
+    audio::write_wav(&tmp, signal, format).map_err(|e| {
+        let _ = std::fs::remove_file(&tmp);
+        e.to_string()
+    })?;
+    std::fs::rename(&tmp, &dest).map_err(|e| {
+        let _ = std::fs::remove_file(&tmp);
+        format!("{}: {e}", dest.display())
+    })?;
+    Ok(dest)
 }
 
 #[cfg(test)]

@@ -15,7 +15,7 @@ use serde::Serialize;
 
 use crate::audio::{self, Audio, SampleFormat};
 use crate::dsp::resample::resample;
-use crate::files::{self, file_stem};
+use crate::files::{self, file_stem, write_wav_atomically};
 use crate::recipe::Plan;
 use crate::seed::{TakeRng, step_seed, take_seed};
 use crate::steps::{TakeContext, run_step};
@@ -506,23 +506,6 @@ fn make_take(
         clip: out,
         stems,
     })
-}
-
-/// Write audio to `out/rel` under a temporary name, then rename it into place.
-fn write_wav_atomically(
-    out: &Path,
-    rel: &str,
-    signal: &Audio,
-    format: SampleFormat,
-) -> Result<PathBuf, String> {
-    let dest = out.join(rel);
-    let tmp = out.join(format!("{rel}.part"));
-    audio::write_wav(&tmp, signal, format).map_err(|e| {
-        let _ = std::fs::remove_file(&tmp);
-        e.to_string()
-    })?;
-    std::fs::rename(&tmp, &dest).map_err(|e| format!("{}: {e}", dest.display()))?;
-    Ok(dest)
 }
 
 /// [`files::write_atomically`] with the output error of a run.

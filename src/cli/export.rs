@@ -17,19 +17,14 @@ pub fn export(manifest: &Path, formats: &[Format], out: Option<&Path>, replace: 
     for p in &read.problems {
         eprintln!("{p}");
     }
-    let (mut written, mut untimed, mut kept, mut failed) = (0, 0, 0, 0);
+    let (mut written, mut untimed, mut failed) = (0, 0, 0);
+    let mut kept = Vec::new();
     for entry in &read.entries {
         for &format in formats {
             match export_clip(&entry.clip, read.base(), out, format, replace) {
                 Ok(Outcome::Written(_)) => written += 1,
                 Ok(Outcome::Untimed) => untimed += 1,
-                Ok(Outcome::Exists(path)) => {
-                    eprintln!(
-                        "{}: exists, left as it is (--replace to overwrite)",
-                        path.display()
-                    );
-                    kept += 1;
-                }
+                Ok(Outcome::Exists(path)) => kept.push(path),
                 Err(e) => {
                     eprintln!(
                         "{} line {}: clip `{}`: cannot write: {e}",
@@ -46,7 +41,21 @@ pub fn export(manifest: &Path, formats: &[Format], out: Option<&Path>, replace: 
     if untimed > 0 {
         println!("skipped {untimed} untimed (text only, nothing to time)");
     }
-    if kept + failed + read.problems.len() > 0 {
+    if !kept.is_empty() {
+        // A rerun over the same takes would otherwise print one line per file.
+        const SHOWN: usize = 3;
+        for path in kept.iter().take(SHOWN) {
+            eprintln!("{}: exists, left as it is", path.display());
+        }
+        if kept.len() > SHOWN {
+            eprintln!("... and {} more", kept.len() - SHOWN);
+        }
+        println!(
+            "kept {} existing files as they were (--replace to overwrite)",
+            kept.len()
+        );
+    }
+    if kept.len() + failed + read.problems.len() > 0 {
         ExitCode::from(super::EXIT_REJECTS)
     } else {
         ExitCode::SUCCESS

@@ -4,10 +4,10 @@
 use super::labels::lines_of;
 use super::plan::{LeftOut, PlannedCut, Reason, plan};
 use super::units::{Units, find_units};
-use super::write::write_wav_atomically;
 use super::{CUTS_DIR, CutReject, CutSpec, LeftOutRecord};
 use crate::audio::{self, Audio};
 use crate::files::file_stem;
+use crate::files::write_wav_atomically;
 use crate::transcript::{Clip, Entry, Manifest, validate};
 
 /// What one source clip gave.

@@ -1,9 +1,8 @@
-//! Cut audio on disk: written under a temporary name and renamed, so an interrupted run
-//! leaves whole files or `.part` files, and the `.part` files are cleared at the next start.
+//! Cut audio on disk is written under a temporary name and renamed
+//! ([`crate::files::write_wav_atomically`]), so an interrupted run leaves whole files or
+//! `.part` files; the `.part` files are cleared at the next start.
 
-use std::path::{Path, PathBuf};
-
-use crate::audio::{self, Audio, SampleFormat};
+use std::path::Path;
 
 /// Remove `*.part` files an interrupted run left in `dir`.
 pub(super) fn remove_partial_files(dir: &Path) -> std::io::Result<()> {
@@ -14,24 +13,4 @@ pub(super) fn remove_partial_files(dir: &Path) -> std::io::Result<()> {
         }
     }
     Ok(())
-}
-
-/// Write `signal` to `out/rel` as `out/rel.part`, then rename it into place.
-pub(super) fn write_wav_atomically(
-    out: &Path,
-    rel: &str,
-    signal: &Audio,
-    format: SampleFormat,
-) -> Result<PathBuf, String> {
-    let dest = out.join(rel);
-    let tmp = out.join(format!("{rel}.part"));
-    audio::write_wav(&tmp, signal, format).map_err(|e| {
-        let _ = std::fs::remove_file(&tmp);
-        e.to_string()
-    })?;
-    std::fs::rename(&tmp, &dest).map_err(|e| {
-        let _ = std::fs::remove_file(&tmp);
-        format!("{}: {e}", dest.display())
-    })?;
-    Ok(dest)
 }
