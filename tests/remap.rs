@@ -1,5 +1,6 @@
-//! `retake remap`: an annotation that is not the transcript (here a burst-train TSV) follows
-//! speed perturbation and a simulated room to within 2 ms of the bursts' measured onsets.
+//! `retake remap`: an annotation that is not the transcript (a burst train, as TSV and as
+//! WebVTT) follows speed perturbation and a simulated room to within 2 ms of the bursts'
+//! measured onsets; missing and bad annotations are listed.
 
 mod common;
 
@@ -46,6 +47,16 @@ fn burst_clip(dir: &Path) {
         tsv += &format!("{t}\t{}\tbeep{i}\tleft\n", t + BURST_S);
     }
     std::fs::write(labels.join("bursts.tsv"), tsv).unwrap();
+    // The same bursts as WebVTT with identifiers, settings and a NOTE, all to be kept.
+    let mut vtt = String::from("WEBVTT - yard test\n\nNOTE bursts from the reversing beeper\n\n");
+    for (i, t) in BURSTS.iter().enumerate() {
+        let (a, b) = (
+            retake::transcript::webvtt::format_timestamp(*t),
+            retake::transcript::webvtt::format_timestamp(t + BURST_S),
+        );
+        vtt += &format!("beep{i}\n{a} --> {b} align:start\n<v beeper>beep {i}\n\n");
+    }
+    std::fs::write(labels.join("bursts.vtt"), vtt).unwrap();
 }
 
 fn read_wav(path: &Path) -> Vec<f32> {
@@ -117,14 +128,52 @@ fn burst_annotation_follows_speed_and_room_to_two_ms() {
         factors.contains(&0.9) && factors.contains(&1.1),
         "both speeds drawn: {factors:?}"
     );
-    eprintln!("worst onset error {:.3} ms", worst * 1e3);
+    // The WebVTT copy, read by webvtt-py (PyPI), must say the same to WebVTT's millisecond.
+    let mut vtt_worst: f64 = 0.0;
+    for take in &takes {
+        let id = take["id"].as_str().unwrap();
+        let y = read_wav(&tmp.path().join("out").join(take["audio"].as_str().unwrap()));
+        let moved = out.join(format!("{}.vtt", retake::files::file_stem(id)));
+        let text = std::fs::read_to_string(&moved).unwrap();
+        assert!(
+            text.starts_with("WEBVTT - yard test\n\nNOTE bursts"),
+            "{text}"
+        );
+        let cues = common::run_python(
+            "import sys, webvtt\nfor c in webvtt.read(sys.argv[1]):\n    print(c.identifier, c.start_in_seconds, c.start, c.text, sep='|')",
+            &[moved.to_str().unwrap()],
+        );
+        let cues: Vec<Vec<&str>> = cues.lines().map(|l| l.split('|').collect()).collect();
+        assert_eq!(cues.len(), BURSTS.len(), "{text}");
+        for (i, cue) in cues.iter().enumerate() {
+            assert_eq!(cue[0], format!("beep{i}"));
+            assert!(text.contains(" align:start\n<v beeper>"), "{text}");
+            // webvtt-py's start: "hh:mm:ss.mmm"; seconds and milliseconds parsed here.
+            let hms: Vec<f64> = cue[2].split(':').map(|x| x.parse().unwrap()).collect();
+            let start = hms[0] * 3600.0 + hms[1] * 60.0 + hms[2];
+            assert_eq!(start.floor(), cue[1].parse::<f64>().unwrap());
+            let onset = common::onset_near(&y, RATE, start, 0.25);
+            vtt_worst = vtt_worst.max((onset - start).abs());
+            assert!(
+                (onset - start).abs() <= 0.002,
+                "{id}: cue {i} at {start}, onset {onset}"
+            );
+        }
+    }
+    eprintln!(
+        "worst onset error {:.3} ms (TSV), {:.3} ms (WebVTT)",
+        worst * 1e3,
+        vtt_worst * 1e3
+    );
 }
 
 #[test]
 fn missing_annotations_and_non_takes_are_listed() {
     let tmp = tempfile::tempdir().unwrap();
     burst_clip(tmp.path());
-    std::fs::remove_file(tmp.path().join("labels/yard/bursts.tsv")).unwrap();
+    for ext in ["tsv", "vtt"] {
+        std::fs::remove_file(tmp.path().join(format!("labels/yard/bursts.{ext}"))).unwrap();
+    }
     let recipe = "takes = 1\n[[step]]\ndo = \"gain\"\ndb = -3.0\n";
     let (code, err, _) = run_recipe(tmp.path(), recipe, &tmp.path().join("in.jsonl"));
     assert_eq!(code, Some(0), "{err}");
@@ -154,4 +203,20 @@ fn missing_annotations_and_non_takes_are_listed() {
         "{err}"
     );
     assert!(read_jsonl(&tmp.path().join("out/manifest.jsonl")).len() == 1);
+    // A bad annotation is named by file and line, and fails the command.
+    std::fs::write(
+        tmp.path().join("labels/yard/bursts.vtt"),
+        "WEBVTT\n\n00:01.000 --> 00:00.500\nbeep\n",
+    )
+    .unwrap();
+    let o = retake(&[
+        "remap",
+        tmp.path().join("out/manifest.jsonl").to_str().unwrap(),
+        tmp.path().join("labels").to_str().unwrap(),
+        "-o",
+        tmp.path().join("moved").to_str().unwrap(),
+    ]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(3), "{err}");
+    assert!(err.contains("bursts.vtt line 3:"), "{err}");
 }
