@@ -41,8 +41,9 @@ pub fn import(dir: &Path, manifest: Option<&Path>, channels: ChannelPolicy) -> E
     let seconds: f64 = found.clips.iter().filter_map(|c| c.duration).sum();
     let timed = found.clips.iter().filter(|c| c.lines.is_some()).count();
     println!(
-        "imported {} clips ({timed} timed, {} untimed), {:.3} h of audio",
+        "imported {} clip{} ({timed} timed, {} untimed), {:.3} h of audio",
         found.clips.len(),
+        if found.clips.len() == 1 { "" } else { "s" },
         found.clips.len() - timed,
         seconds / 3600.0
     );
@@ -51,7 +52,7 @@ pub fn import(dir: &Path, manifest: Option<&Path>, channels: ChannelPolicy) -> E
         ExitCode::SUCCESS
     } else {
         println!(
-            "left out {} problem{} above (file and line named on each)",
+            "left out files with {} problem{} (listed above, each with its file and line)",
             found.problems.len(),
             if found.problems.len() == 1 { "" } else { "s" }
         );
