@@ -563,3 +563,53 @@ fn an_untimed_clip_too_long_is_left_out_and_bad_options_are_usage_errors() {
         assert!(!String::from_utf8_lossy(&o.stderr).is_empty());
     }
 }
+
+#[test]
+fn a_recording_shorter_than_its_header_says_is_rejected_with_no_cuts_left() {
+    // The recording is streamed, so the first cuts are written before the end of the file is
+    // reached; a WAV whose data chunk declares more than the file holds must still end as a
+    // reject with every cut of it removed.
+    let tmp = tempfile::tempdir().unwrap();
+    let rate = 16_000;
+    let spans: Vec<(f64, f64)> = (0..12)
+        .map(|i| (0.5 + 2.0 * i as f64, 1.2 + 2.0 * i as f64))
+        .collect();
+    let wav = tmp.path().join("long.wav");
+    common::write_wav_pcm16(&wav, rate, &bursts(rate, 25.0, &spans));
+    let full = std::fs::metadata(&wav).unwrap().len();
+    // Chop the last 5 s of samples (2 bytes each) but keep the header's declared size.
+    let f = std::fs::OpenOptions::new().write(true).open(&wav).unwrap();
+    f.set_len(full - 5 * 2 * u64::from(rate)).unwrap();
+    let lines: Vec<Value> = spans
+        .iter()
+        .take(8)
+        .enumerate()
+        .map(|(i, (a, b))| {
+            serde_json::json!({"start": a, "end": b, "text": format!("beep {i}"),
+                "words": [{"start": a, "end": b, "text": "beep"}]})
+        })
+        .collect();
+    let manifest = tmp.path().join("in.jsonl");
+    std::fs::write(
+        &manifest,
+        serde_json::json!({"id": "long", "audio": "long.wav", "lines": lines}).to_string() + "\n",
+    )
+    .unwrap();
+    let out = tmp.path().join("out");
+    let (code, stdout) = cut(&manifest, &out, &["--longest", "3"]);
+    assert_eq!(code, Some(3), "{stdout}");
+    let rejects = read_jsonl(&out.join("rejects.jsonl"));
+    assert_eq!(rejects.len(), 1, "{rejects:?}");
+    assert_eq!(rejects[0]["field"], "audio");
+    let reason = rejects[0]["reason"].as_str().unwrap();
+    assert!(
+        reason.contains("long.wav") && reason.contains("truncated"),
+        "{reason}"
+    );
+    assert!(read_jsonl(&out.join("manifest.jsonl")).is_empty());
+    let left: Vec<_> = std::fs::read_dir(out.join("cuts")).unwrap().collect();
+    assert!(
+        left.is_empty(),
+        "cuts of a rejected recording remain: {left:?}"
+    );
+}

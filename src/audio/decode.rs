@@ -2,7 +2,7 @@
 
 use std::fs::File;
 use std::io::ErrorKind;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 use symphonia::core::codecs::audio::{AudioDecoder, AudioDecoderOptions};
 use symphonia::core::errors::Error as SymError;
@@ -60,150 +60,214 @@ const MAX_RESERVED_FRAMES: u64 = 1 << 24;
 ///
 /// No partial audio is ever returned.
 pub fn decode(path: &Path, channels: ChannelPolicy) -> Result<Audio, AudioError> {
-    let io_err = |source| AudioError::Io {
-        path: path.to_path_buf(),
-        source,
-    };
-    let file = File::open(path).map_err(io_err)?;
-    let mss = MediaSourceStream::new(Box::new(file), Default::default());
-
-    let mut hint = Hint::new();
-    if let Some(ext) = path.extension().and_then(|e| e.to_str()) {
-        hint.with_extension(ext);
-    }
-    let mut format = symphonia::default::get_probe()
-        .probe(
-            &hint,
-            mss,
-            FormatOptions::default(),
-            MetadataOptions::default(),
-        )
-        .map_err(|e| opening_error(path, e))?;
-
-    let track = format
-        .default_track(TrackType::Audio)
-        .ok_or_else(|| decode_err(path, "no audio track".to_string()))?;
-    let track_id = track.id;
-    let declared = trusted_frame_count(format.as_ref(), track);
-    let params = track
-        .codec_params
-        .as_ref()
-        .and_then(|p| p.audio())
-        .ok_or_else(|| decode_err(path, "audio track without codec parameters".to_string()))?
-        .clone();
-
-    if let (ChannelPolicy::Pick(wanted), Some(layout)) = (channels, &params.channels) {
-        let count = layout.count();
-        if wanted >= count {
-            return Err(AudioError::NoSuchChannel {
-                path: path.to_path_buf(),
-                wanted,
-                channels: count,
-            });
-        }
-    }
-
-    let mut decoder = symphonia::default::get_codecs()
-        .make_audio_decoder(&params, &AudioDecoderOptions::default())
-        .map_err(|e| decode_err(path, e.to_string()))?;
-
-    let reserve = declared.unwrap_or(0).min(MAX_RESERVED_FRAMES) as usize;
-    let mut sink = MonoSink::new(path, channels, reserve);
-    let ended_early = pump(path, format.as_mut(), decoder.as_mut(), track_id, &mut sink)?;
-
-    let found = sink.samples.len() as u64;
-    match declared {
-        Some(declared) if found < declared => {
-            return Err(AudioError::Truncated {
-                path: path.to_path_buf(),
-                declared,
-                found,
-            });
-        }
-        _ if ended_early => {
-            return Err(decode_err(
-                path,
-                format!("stream ends inside a packet after {found} frames"),
-            ));
-        }
-        _ => {}
-    }
-
-    let rate = sink
-        .rate
-        .or(params.sample_rate)
-        .filter(|&r| r > 0)
-        .ok_or_else(|| decode_err(path, "no sample rate in the stream".to_string()))?;
+    let mut stream = Stream::open(path, channels)?;
+    let reserve = stream
+        .declared_frames()
+        .unwrap_or(0)
+        .min(MAX_RESERVED_FRAMES) as usize;
+    let mut samples = Vec::with_capacity(reserve);
+    while stream.read_into(&mut samples)? {}
     Ok(Audio {
-        rate,
-        samples: sink.samples,
+        rate: stream.rate()?,
+        samples,
     })
 }
 
-/// Read and decode every packet of `track_id` into `sink`. Returns `true` when the demuxer hit
-/// end of file inside a packet (the caller decides between truncated and undecodable).
-fn pump(
-    path: &Path,
-    format: &mut dyn FormatReader,
-    decoder: &mut dyn AudioDecoder,
+/// A file decoded packet by packet, for callers that must not hold a long recording whole
+/// (`cut`). Same formats, channel policy and checks as [`decode`], which is built on it: the
+/// length check against the header happens when the stream ends.
+pub struct Stream {
+    path: PathBuf,
+    format: Box<dyn FormatReader>,
+    decoder: Box<dyn AudioDecoder>,
     track_id: u32,
-    sink: &mut MonoSink<'_>,
-) -> Result<bool, AudioError> {
-    loop {
-        let packet = match format.next_packet() {
-            Ok(Some(packet)) => packet,
-            Ok(None) => return Ok(false),
-            Err(SymError::IoError(e)) if e.kind() == ErrorKind::UnexpectedEof => return Ok(true),
-            Err(SymError::IoError(source)) => {
-                return Err(AudioError::Io {
-                    path: path.to_path_buf(),
-                    source,
-                });
-            }
-            Err(e) => {
-                return Err(decode_err(
-                    path,
-                    format!("after {} frames: {e}", sink.samples.len()),
-                ));
-            }
-        };
-        if packet.track_id != track_id {
-            continue;
-        }
-        let buf = decoder.decode(&packet).map_err(|e| {
-            decode_err(
-                path,
-                format!("packet after {} frames: {e}", sink.samples.len()),
-            )
-        })?;
-        sink.push(&buf)?;
+    declared: Option<u64>,
+    /// Rate from the codec parameters, replaced by the first packet's.
+    rate: Option<u32>,
+    sink: MonoSink,
+    found: u64,
+    ended: bool,
+}
+
+impl std::fmt::Debug for Stream {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Stream")
+            .field("path", &self.path)
+            .field("declared", &self.declared)
+            .field("found", &self.found)
+            .finish_non_exhaustive()
     }
 }
 
-/// Collects decoded buffers into one mono `Vec`, by the channel policy.
-struct MonoSink<'p> {
-    path: &'p Path,
+impl Stream {
+    /// Open `path` and find its audio track.
+    ///
+    /// # Errors
+    /// As [`decode`], for everything that can be known before the first packet.
+    pub fn open(path: &Path, channels: ChannelPolicy) -> Result<Self, AudioError> {
+        let io_err = |source| AudioError::Io {
+            path: path.to_path_buf(),
+            source,
+        };
+        let file = File::open(path).map_err(io_err)?;
+        let mss = MediaSourceStream::new(Box::new(file), Default::default());
+
+        let mut hint = Hint::new();
+        if let Some(ext) = path.extension().and_then(|e| e.to_str()) {
+            hint.with_extension(ext);
+        }
+        let format = symphonia::default::get_probe()
+            .probe(
+                &hint,
+                mss,
+                FormatOptions::default(),
+                MetadataOptions::default(),
+            )
+            .map_err(|e| opening_error(path, e))?;
+
+        let track = format
+            .default_track(TrackType::Audio)
+            .ok_or_else(|| decode_err(path, "no audio track".to_string()))?;
+        let track_id = track.id;
+        let declared = trusted_frame_count(format.as_ref(), track);
+        let params = track
+            .codec_params
+            .as_ref()
+            .and_then(|p| p.audio())
+            .ok_or_else(|| decode_err(path, "audio track without codec parameters".to_string()))?
+            .clone();
+
+        if let (ChannelPolicy::Pick(wanted), Some(layout)) = (channels, &params.channels) {
+            let count = layout.count();
+            if wanted >= count {
+                return Err(AudioError::NoSuchChannel {
+                    path: path.to_path_buf(),
+                    wanted,
+                    channels: count,
+                });
+            }
+        }
+
+        let decoder = symphonia::default::get_codecs()
+            .make_audio_decoder(&params, &AudioDecoderOptions::default())
+            .map_err(|e| decode_err(path, e.to_string()))?;
+        Ok(Stream {
+            path: path.to_path_buf(),
+            format,
+            decoder,
+            track_id,
+            declared,
+            rate: params.sample_rate.filter(|&r| r > 0),
+            sink: MonoSink::new(channels),
+            found: 0,
+            ended: false,
+        })
+    }
+
+    /// The length in frames the header declares, when it is exact (WAV, FLAC, Ogg, MP3 with
+    /// a LAME tag); the stream is checked against it when it ends.
+    pub fn declared_frames(&self) -> Option<u64> {
+        self.declared
+    }
+
+    /// The sample rate.
+    ///
+    /// # Errors
+    /// Neither the header nor a decoded packet gave one.
+    pub fn rate(&self) -> Result<u32, AudioError> {
+        self.sink
+            .rate
+            .or(self.rate)
+            .filter(|&r| r > 0)
+            .ok_or_else(|| decode_err(&self.path, "no sample rate in the stream".to_string()))
+    }
+
+    /// Append the next packet's frames (one channel, by the policy) to `out`. Returns
+    /// `false` once the stream has ended and its length checked; nothing is appended then.
+    ///
+    /// # Errors
+    /// As [`decode`]: a read or decode failure, or a stream shorter than its header says.
+    pub fn read_into(&mut self, out: &mut Vec<f32>) -> Result<bool, AudioError> {
+        while !self.ended {
+            let packet = match self.format.next_packet() {
+                Ok(Some(packet)) => packet,
+                Ok(None) => return self.end(false),
+                Err(SymError::IoError(e)) if e.kind() == ErrorKind::UnexpectedEof => {
+                    return self.end(true);
+                }
+                Err(SymError::IoError(source)) => {
+                    return Err(AudioError::Io {
+                        path: self.path.clone(),
+                        source,
+                    });
+                }
+                Err(e) => {
+                    return Err(decode_err(
+                        &self.path,
+                        format!("after {} frames: {e}", self.found),
+                    ));
+                }
+            };
+            if packet.track_id != self.track_id {
+                continue;
+            }
+            let buf = self.decoder.decode(&packet).map_err(|e| {
+                decode_err(
+                    &self.path,
+                    format!("packet after {} frames: {e}", self.found),
+                )
+            })?;
+            let before = out.len();
+            self.sink.push(&self.path, &buf, out)?;
+            self.found += (out.len() - before) as u64;
+            if out.len() > before {
+                return Ok(true);
+            }
+        }
+        Ok(false)
+    }
+
+    /// The stream is over: check its length. `inside_packet` when the demuxer hit end of
+    /// file in the middle of a packet.
+    fn end(&mut self, inside_packet: bool) -> Result<bool, AudioError> {
+        self.ended = true;
+        match self.declared {
+            Some(declared) if self.found < declared => Err(AudioError::Truncated {
+                path: self.path.clone(),
+                declared,
+                found: self.found,
+            }),
+            _ if inside_packet => Err(decode_err(
+                &self.path,
+                format!("stream ends inside a packet after {} frames", self.found),
+            )),
+            _ => Ok(false),
+        }
+    }
+}
+
+/// Turns decoded buffers into one channel, by the channel policy.
+struct MonoSink {
     policy: ChannelPolicy,
     rate: Option<u32>,
-    samples: Vec<f32>,
     /// Interleaved copy of a multichannel packet, reused across packets.
     scratch: Vec<f32>,
 }
 
-impl<'p> MonoSink<'p> {
-    fn new(path: &'p Path, policy: ChannelPolicy, reserve: usize) -> Self {
+impl MonoSink {
+    fn new(policy: ChannelPolicy) -> Self {
         MonoSink {
-            path,
             policy,
             rate: None,
-            samples: Vec::with_capacity(reserve),
             scratch: Vec::new(),
         }
     }
 
     fn push(
         &mut self,
+        path: &Path,
         buf: &symphonia::core::audio::GenericAudioBufferRef<'_>,
+        out: &mut Vec<f32>,
     ) -> Result<(), AudioError> {
         let frames = buf.frames();
         if frames == 0 {
@@ -214,7 +278,7 @@ impl<'p> MonoSink<'p> {
             None => self.rate = Some(spec.rate()),
             Some(r) if r != spec.rate() => {
                 return Err(decode_err(
-                    self.path,
+                    path,
                     format!("sample rate changes from {r} to {} mid-stream", spec.rate()),
                 ));
             }
@@ -223,38 +287,37 @@ impl<'p> MonoSink<'p> {
         let n = spec.channels().count();
         if n == 0 {
             return Err(decode_err(
-                self.path,
+                path,
                 "decoded audio has no channels".to_string(),
             ));
         }
         if let ChannelPolicy::Pick(wanted) = self.policy {
             if wanted >= n {
                 return Err(AudioError::NoSuchChannel {
-                    path: self.path.to_path_buf(),
+                    path: path.to_path_buf(),
                     wanted,
                     channels: n,
                 });
             }
         }
         if n == 1 {
-            let start = self.samples.len();
-            self.samples.resize(start + frames, 0.0);
-            buf.copy_to_slice_interleaved(&mut self.samples[start..]);
+            let start = out.len();
+            out.resize(start + frames, 0.0);
+            buf.copy_to_slice_interleaved(&mut out[start..]);
             return Ok(());
         }
         buf.copy_to_vec_interleaved(&mut self.scratch);
         match self.policy {
             ChannelPolicy::Mix => {
                 let n_f = n as f32;
-                self.samples.extend(
+                out.extend(
                     self.scratch
                         .chunks_exact(n)
                         .map(|frame| frame.iter().sum::<f32>() / n_f),
                 );
             }
             ChannelPolicy::Pick(k) => {
-                self.samples
-                    .extend(self.scratch.chunks_exact(n).map(|frame| frame[k]));
+                out.extend(self.scratch.chunks_exact(n).map(|frame| frame[k]));
             }
         }
         Ok(())

@@ -1,11 +1,12 @@
-//! One source clip through `cut`: check, decode, plan, slice, write. Its audio is dropped
-//! when the clip is done, so memory holds only the clips being worked on.
+//! One source clip through `cut`: check, measure its length, plan, then decode front to back
+//! while slicing and writing, so memory holds about one cut of audio at a time.
 
 use super::labels::lines_of;
 use super::plan::{LeftOut, PlannedCut, Reason, plan};
 use super::units::{Units, find_units};
+use super::window::{Window, frame_count};
 use super::{CUTS_DIR, CutReject, CutSpec, LeftOutRecord};
-use crate::audio::{self, Audio};
+use crate::audio::Audio;
 use crate::files::file_stem;
 use crate::files::write_wav_atomically;
 use crate::transcript::{Clip, Entry, Manifest, validate};
@@ -43,21 +44,22 @@ pub(super) fn cut_clip(
         return Err(reject(&field, reason));
     }
     let path = manifest.base().join(&clip.audio);
-    let source = audio::decode(&path, spec.channels).map_err(|e| reject("audio", e.to_string()))?;
-    if source.samples.is_empty() {
+    let audio_err = |e: crate::audio::AudioError| reject("audio", e.to_string());
+    let (total, sample_rate) = frame_count(&path, spec.channels).map_err(audio_err)?;
+    if total == 0 {
         return Err(reject("audio", format!("{}: no samples", path.display())));
     }
-    if let Some((field, reason)) = validate(clip, Some(source.duration())).into_iter().next() {
+    let seconds = total as f64 / f64::from(sample_rate);
+    if let Some((field, reason)) = validate(clip, Some(seconds)).into_iter().next() {
         return Err(reject(&field, reason));
     }
 
-    let rate = f64::from(source.rate);
-    let total = source.samples.len() as u64;
+    let rate = f64::from(sample_rate);
     let mut outcome = ClipOutcome::default();
     let (cuts, units) = match &clip.lines {
         Some(lines) => {
-            let units = find_units(lines, source.rate, total);
-            let p = plan(&units, total, source.rate, &spec.plan(), &clip.id);
+            let units = find_units(lines, sample_rate, total);
+            let p = plan(&units, total, sample_rate, &spec.plan(), &clip.id);
             for l in &p.left_out {
                 let record = left_out_record(spec, entry, &units, l, rate);
                 outcome.speech_left_out += record.1;
@@ -65,7 +67,7 @@ pub(super) fn cut_clip(
             }
             (p.cuts, Some(units))
         }
-        None => match untimed(spec, entry, total, source.rate) {
+        None => match untimed(spec, entry, total, sample_rate) {
             Ok(whole) => (vec![whole], None),
             Err(left) => {
                 outcome.speech_left_out += left.end;
@@ -77,6 +79,7 @@ pub(super) fn cut_clip(
 
     let stem = file_stem(&clip.id);
     let mut written = Vec::new();
+    let mut window = Window::open(&path, spec.channels).map_err(audio_err)?;
     let result = cuts.iter().enumerate().try_for_each(|(k, c)| {
         let rel = format!("{CUTS_DIR}/{stem}.c{k}.wav");
         let record = cut_record(clip, units.as_ref(), c, k, &rel, rate);
@@ -87,8 +90,10 @@ pub(super) fn cut_clip(
             ));
         }
         let signal = Audio {
-            rate: source.rate,
-            samples: source.samples[c.start as usize..c.end as usize].to_vec(),
+            rate: sample_rate,
+            samples: window
+                .take(c.start, c.end)
+                .map_err(|e| reject("audio", e))?,
         };
         let dest = write_wav_atomically(spec.out, &rel, &signal, spec.format)
             .map_err(|e| reject("", e))?;
@@ -107,6 +112,9 @@ pub(super) fn cut_clip(
         outcome.cuts.push(record);
         Ok(())
     });
+    // The whole file is read even after the last cut, so a recording shorter than its
+    // header says is a reject, as `run` would make it.
+    let result = result.and_then(|()| window.finish().map_err(|e| reject("audio", e)));
     if let Err(r) = result {
         for f in written {
             let _ = std::fs::remove_file(f);

@@ -10,12 +10,14 @@
 //! gap), so the output is byte-identical for any thread count. Files are written under a
 //! temporary name and renamed. Speech that cannot be cut within the limits goes to
 //! `left_out.jsonl`; a clip that cannot be processed at all goes to `rejects.jsonl`, and
-//! the run goes on. A whole recording is decoded into memory while its clip is worked on.
+//! the run goes on. A recording is decoded front to back as its cuts need it
+//! ([`window`]), so a worker holds about one cut of audio, however long the recording.
 
 mod clip;
 pub mod labels;
 pub mod plan;
 pub mod units;
+mod window;
 mod write;
 
 use std::path::Path;
