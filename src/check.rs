@@ -59,12 +59,13 @@ fn check_entry(manifest: &Manifest, entry: &Entry) -> (f64, Vec<Problem>) {
         message,
     };
     let clip = &entry.clip;
-    let decoded = audio::decode(&manifest.base().join(&clip.audio), ChannelPolicy::Mix);
-    let (duration, mut problems) = match decoded {
+    // One pass without keeping the samples: a long session costs no more memory than a clip.
+    let scanned = audio::scan(&manifest.base().join(&clip.audio), ChannelPolicy::Mix);
+    let (duration, mut problems) = match scanned {
         Err(e) => (None, vec![problem("audio", e.to_string())]),
         Ok(a) => {
             let mut ps = Vec::new();
-            if let Some(i) = a.samples.iter().position(|s| !s.is_finite()) {
+            if let Some(i) = a.first_non_finite {
                 ps.push(problem("audio", format!("sample {i} is not finite")));
             }
             if let Some(d) = clip.duration {

@@ -3,8 +3,8 @@
 //! Each audio file (`.wav`, `.flac`, `.mp3`, `.ogg`, `.oga`) pairs with the one transcript of
 //! the same stem in the same folder: `.vtt` (WebVTT), `.tsv` (word rows) or `.txt` (untimed
 //! text). Subfolders are walked; a clip's id is its path from the folder without the
-//! extension (`day1/aisle-03`). Every audio file is decoded, so a transcript that runs past
-//! its audio is caught here rather than in the middle of a run.
+//! extension (`day1/aisle-03`). Every audio file is decoded once (without keeping its samples), so a
+//! transcript that runs past its audio is caught here rather than in the middle of a run.
 //!
 //! Bad pairs do not stop the import: the good clips come through and each problem names the
 //! file and line it is about.
@@ -192,9 +192,9 @@ fn import_pair(
     };
     let text = std::fs::read_to_string(sidecar)
         .map_err(|e| vec![whole_file(sidecar, format!("cannot read: {e}"))])?;
-    let decoded = audio::decode(audio_path, channels)
-        .map_err(|e| vec![whole_file(audio_path, format!("cannot decode: {e}"))])?;
-    let duration = decoded.duration();
+    let duration = audio::scan(audio_path, channels)
+        .map_err(|e| vec![whole_file(audio_path, format!("cannot decode: {e}"))])?
+        .duration();
     let audio_rel = relative_to(audio_path, manifest_dir);
     let mut clip = Clip {
         id,

@@ -353,6 +353,27 @@ fn check_reports_every_problem_with_line_and_field() {
         "{err}"
     );
     assert!(err.contains(&format!("{m} line 4: empty line")), "{err}");
+    // A float file with a NaN at sample 1234, and a duration that disagrees with the audio.
+    let mut x = bursts(16000, 2.0);
+    x[1234] = f32::NAN;
+    common::write_wav_float(&dir.join("nan.wav"), 16000, &x);
+    let mut wrong = serde_json::from_str::<Value>(&line("long", "a.wav", WORDS)).unwrap();
+    wrong["duration"] = Value::from(2.5);
+    let lines = [line("nan", "nan.wav", WORDS), wrong.to_string()];
+    std::fs::write(&manifest, lines.join("\n") + "\n").unwrap();
+    let o = retake(&["check", manifest.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains(&format!("{m} line 1: audio: sample 1234 is not finite")),
+        "{err}"
+    );
+    assert!(
+        err.contains(&format!(
+            "{m} line 2: duration: 2.5 s, but the audio lasts 2.0000 s"
+        )),
+        "{err}"
+    );
     // Clean manifest: exit 0.
     std::fs::write(&manifest, line("good", "a.wav", WORDS) + "\n").unwrap();
     assert!(

@@ -73,6 +73,49 @@ pub fn decode(path: &Path, channels: ChannelPolicy) -> Result<Audio, AudioError>
     })
 }
 
+/// What one pass over a file found, without keeping its samples.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Scan {
+    /// Samples per second.
+    pub rate: u32,
+    /// Frames decoded (the file's length, checked against its header).
+    pub frames: u64,
+    /// Index of the first sample that is NaN or infinite, if any.
+    pub first_non_finite: Option<u64>,
+}
+
+impl Scan {
+    /// Length in seconds.
+    pub fn duration(&self) -> f64 {
+        self.frames as f64 / f64::from(self.rate)
+    }
+}
+
+/// Decode a whole file as [`decode`] does, but keep only its length and whether every
+/// sample is finite: memory stays at one packet however long the recording.
+///
+/// # Errors
+/// As [`decode`].
+pub fn scan(path: &Path, channels: ChannelPolicy) -> Result<Scan, AudioError> {
+    let mut stream = Stream::open(path, channels)?;
+    let (mut frames, mut first_non_finite, mut buf) = (0u64, None, Vec::new());
+    while stream.read_into(&mut buf)? {
+        if first_non_finite.is_none() {
+            first_non_finite = buf
+                .iter()
+                .position(|s| !s.is_finite())
+                .map(|i| frames + i as u64);
+        }
+        frames += buf.len() as u64;
+        buf.clear();
+    }
+    Ok(Scan {
+        rate: stream.rate()?,
+        frames,
+        first_non_finite,
+    })
+}
+
 /// A file decoded packet by packet, for callers that must not hold a long recording whole
 /// (`cut`). Same formats, channel policy and checks as [`decode`], which is built on it: the
 /// length check against the header happens when the stream ends.

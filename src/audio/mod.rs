@@ -10,7 +10,7 @@ use serde::{Deserialize, Serialize};
 mod decode;
 mod encode;
 
-pub use decode::{Stream, decode};
+pub use decode::{Scan, Stream, decode, scan};
 pub use encode::write_wav;
 
 /// Mono samples in [-1, 1] at a known rate.

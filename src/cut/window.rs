@@ -4,22 +4,18 @@
 use crate::audio::{AudioError, ChannelPolicy, Stream};
 use std::path::{Path, PathBuf};
 
-/// The recording's length in frames: from the header when it is exact, else by decoding
-/// once without keeping the samples.
+/// The recording's length in frames and its rate: from the header when it is exact (the
+/// slicing pass checks it at the end), else by one decoding pass.
 ///
 /// # Errors
 /// Opening or decoding the file.
 pub fn frame_count(path: &Path, channels: ChannelPolicy) -> Result<(u64, u32), AudioError> {
-    let mut stream = Stream::open(path, channels)?;
+    let stream = Stream::open(path, channels)?;
     if let Some(n) = stream.declared_frames() {
         return Ok((n, stream.rate()?));
     }
-    let (mut n, mut buf) = (0u64, Vec::new());
-    while stream.read_into(&mut buf)? {
-        n += buf.len() as u64;
-        buf.clear();
-    }
-    Ok((n, stream.rate()?))
+    let scan = crate::audio::scan(path, channels)?;
+    Ok((scan.frames, scan.rate))
 }
 
 /// Decoded frames `[start, start + buf.len())` of a stream, moving forward only.
