@@ -28,29 +28,27 @@ struct Cli {
 
 #[derive(Debug, Subcommand)]
 enum Command {
-    /// Make takes of every clip in a manifest, as a recipe says.
-    Run {
-        /// The recipe (TOML).
-        recipe: PathBuf,
-        /// Input manifest (JSON Lines, one clip per line).
+    /// Make a manifest from a folder of recordings with transcripts beside them.
+    ///
+    /// Each audio file pairs with the `.vtt` (WebVTT), `.tsv` (word rows) or `.txt` (untimed
+    /// text) of the same stem.
+    Import {
+        /// The folder (walked with its subfolders).
+        dir: PathBuf,
+        /// The manifest to write [default: DIR/manifest.jsonl].
         #[arg(long, short)]
-        input: PathBuf,
-        /// Output folder: takes/, manifest.jsonl and rejects.jsonl are written here.
-        #[arg(long, short)]
-        out: PathBuf,
-        /// Worker threads (default: one per core).
-        #[arg(long, short = 'j')]
-        threads: Option<usize>,
-        /// Multichannel input: `mix` (mean of channels) or a channel number from 0.
-        /// Overrides the recipe's `channels`.
-        #[arg(long, value_parser = parse_channels)]
-        channels: Option<ChannelPolicy>,
+        out: Option<PathBuf>,
+        /// Multichannel audio: `mix` or a channel number from 0 (used to measure length).
+        #[arg(long, value_parser = parse_channels, default_value = "mix")]
+        channels: ChannelPolicy,
     },
     /// Validate a manifest and its audio; one message per problem.
     Check {
         /// The manifest to check.
         manifest: PathBuf,
     },
+    /// Split long recordings into clips between two lengths, only in gaps between words.
+    Cut(cut::CutArgs),
     /// Describe a noise bank: per file its part, length, level, centroid and steadiness.
     Bank {
         /// The bank folder (first-level subfolders are categories).
@@ -71,19 +69,35 @@ enum Command {
         )]
         held_out: f64,
     },
-    /// Split long recordings into clips between two lengths, only in gaps between words.
-    Cut(cut::CutArgs),
-    /// Make a manifest from a folder of recordings with transcripts of the same name beside
-    /// them (.vtt WebVTT, .tsv word rows, .txt untimed text).
-    Import {
-        /// The folder (walked with its subfolders).
-        dir: PathBuf,
-        /// The manifest to write [default: DIR/manifest.jsonl].
+    /// Make takes of every clip in a manifest, as a recipe says.
+    Run {
+        /// The recipe (TOML).
+        recipe: PathBuf,
+        /// Input manifest (JSON Lines, one clip per line).
         #[arg(long, short)]
-        out: Option<PathBuf>,
-        /// Multichannel audio: `mix` or a channel number from 0 (used to measure length).
-        #[arg(long, value_parser = parse_channels, default_value = "mix")]
-        channels: ChannelPolicy,
+        input: PathBuf,
+        /// Output folder: takes/, manifest.jsonl and rejects.jsonl are written here.
+        #[arg(long, short)]
+        out: PathBuf,
+        /// Worker threads (default: one per core).
+        #[arg(long, short = 'j')]
+        threads: Option<usize>,
+        /// Multichannel input: `mix` (mean of channels) or a channel number from 0.
+        /// Overrides the recipe's `channels`.
+        #[arg(long, value_parser = parse_channels)]
+        channels: Option<ChannelPolicy>,
+    },
+    /// Carry other annotations of the source clips (TSV, WebVTT) to a run's takes.
+    ///
+    /// Every time goes through the time map stored in each take's `origin`.
+    Remap {
+        /// The run's output manifest (takes).
+        manifest: PathBuf,
+        /// Folder holding `<source id>.tsv` and/or `<source id>.vtt`.
+        labels: PathBuf,
+        /// Folder to write `<take>.tsv` / `<take>.vtt` into.
+        #[arg(long, short)]
+        out: PathBuf,
     },
     /// Write each clip's transcript as WebVTT or TSV, beside its audio or into a folder.
     Export {
@@ -98,17 +112,6 @@ enum Command {
         /// Overwrite files that already exist.
         #[arg(long)]
         replace: bool,
-    },
-    /// Carry other annotations of the source clips (TSV spans, WebVTT) to the takes of a
-    /// run, through the time maps in its manifest.
-    Remap {
-        /// The run's output manifest (takes).
-        manifest: PathBuf,
-        /// Folder holding `<source id>.tsv` and/or `<source id>.vtt`.
-        labels: PathBuf,
-        /// Folder to write `<take>.tsv` / `<take>.vtt` into.
-        #[arg(long, short)]
-        out: PathBuf,
     },
     /// Run the bundled recipe on the bundled demo clips (a cold-store warehouse).
     Demo {
