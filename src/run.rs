@@ -509,7 +509,7 @@ fn make_take(
 }
 
 /// [`files::write_atomically`] with the output error of a run.
-fn write_atomically(
+pub(crate) fn write_atomically(
     path: &Path,
     fill: impl FnOnce(&mut std::io::BufWriter<std::fs::File>) -> std::io::Result<()>,
 ) -> Result<(), RunError> {

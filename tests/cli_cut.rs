@@ -613,3 +613,29 @@ fn a_recording_shorter_than_its_header_says_is_rejected_with_no_cuts_left() {
         "cuts of a rejected recording remain: {left:?}"
     );
 }
+
+#[test]
+fn a_rerun_with_other_limits_leaves_no_stale_cuts_and_nothing_else_is_touched() {
+    let tmp = tempfile::tempdir().unwrap();
+    let s = session::build(tmp.path(), 60.0);
+    let out = tmp.path().join("out");
+    cut(&s.manifest, &out, &["--longest", "3", "--shortest", "1"]);
+    let many = read_jsonl(&out.join("manifest.jsonl")).len();
+    // Something of the user's in the output folder, named like a cut.
+    std::fs::write(out.join("cuts/notes.c99.wav"), b"mine").unwrap();
+    cut(&s.manifest, &out, &["--longest", "15"]);
+    let listed: Vec<String> = read_jsonl(&out.join("manifest.jsonl"))
+        .iter()
+        .map(|c| c["audio"].as_str().unwrap().to_string())
+        .collect();
+    assert!(listed.len() < many, "{} cuts then {}", many, listed.len());
+    let mut on_disk: Vec<String> = std::fs::read_dir(out.join("cuts"))
+        .unwrap()
+        .map(|e| format!("cuts/{}", e.unwrap().file_name().to_string_lossy()))
+        .collect();
+    on_disk.sort();
+    let mut expected = listed.clone();
+    expected.push("cuts/notes.c99.wav".into());
+    expected.sort();
+    assert_eq!(on_disk, expected);
+}

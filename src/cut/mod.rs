@@ -27,8 +27,7 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use crate::audio::{ChannelPolicy, SampleFormat};
-use crate::files;
-use crate::run::{MANIFEST_NAME, REJECTS_NAME, RunError};
+use crate::run::{MANIFEST_NAME, REJECTS_NAME, RunError, write_atomically};
 use crate::transcript::{read_manifest, write_manifest};
 use plan::{Limits, PadRange, PlanSpec, Reason};
 
@@ -146,6 +145,7 @@ pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
     };
     std::fs::create_dir_all(&dir).map_err(output)?;
     write::remove_partial_files(&dir).map_err(output)?;
+    let earlier = earlier_cuts(spec.out);
     let threads = spec.threads.unwrap_or(0);
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
@@ -195,31 +195,44 @@ pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
     rejects.sort_by_key(|r| r.line);
     summary.rejected = rejects.len();
     summary.left_out = left_out.len();
-    write_file(&spec.out.join(MANIFEST_NAME), |w| write_manifest(w, &cuts))?;
+    write_atomically(&spec.out.join(MANIFEST_NAME), |w| write_manifest(w, &cuts))?;
     write_jsonl(&spec.out.join(LEFT_OUT_NAME), &left_out)?;
     write_jsonl(&spec.out.join(REJECTS_NAME), &rejects)?;
+    // Cuts an earlier run wrote here (with other limits, say) that this run did not make
+    // again would lie next to the new ones, listed nowhere: remove them.
+    let kept: std::collections::HashSet<&str> = cuts.iter().map(|c| c.audio.as_str()).collect();
+    for old in earlier.iter().filter(|a| !kept.contains(a.as_str())) {
+        let _ = std::fs::remove_file(spec.out.join(old));
+    }
     summary.wall_seconds = started.elapsed().as_secs_f64();
     Ok(summary)
 }
 
+/// Audio of the cuts listed in an earlier output manifest in `out`, when there is one
+/// (only paths under `cuts/`, so nothing else is ever touched).
+fn earlier_cuts(out: &Path) -> Vec<String> {
+    let Ok(earlier) = read_manifest(&out.join(MANIFEST_NAME)) else {
+        return Vec::new();
+    };
+    earlier
+        .entries
+        .into_iter()
+        .map(|e| e.clip.audio)
+        .filter(|a| {
+            Path::new(a).parent() == Some(Path::new(CUTS_DIR))
+                && a.ends_with(".wav")
+                && !a.contains("..")
+        })
+        .collect()
+}
+
 fn write_jsonl<T: Serialize>(path: &Path, records: &[T]) -> Result<(), RunError> {
     use std::io::Write;
-    write_file(path, |w| {
+    write_atomically(path, |w| {
         for r in records {
             serde_json::to_writer(&mut *w, r)?;
             w.write_all(b"\n")?;
         }
         Ok(())
-    })
-}
-
-/// [`files::write_atomically`] with the output error of a run.
-fn write_file(
-    path: &Path,
-    fill: impl FnOnce(&mut std::io::BufWriter<std::fs::File>) -> std::io::Result<()>,
-) -> Result<(), RunError> {
-    files::write_atomically(path, fill).map_err(|source| RunError::Output {
-        path: path.to_path_buf(),
-        source,
     })
 }
