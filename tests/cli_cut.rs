@@ -8,7 +8,7 @@ mod common;
 use std::path::Path;
 
 use common::session::{self, RATE, Session};
-use common::{read_jsonl, retake, run_python};
+use common::{outside_minus_inside_db, read_jsonl, retake, run_python};
 use retake::audio::{self, ChannelPolicy};
 use serde_json::Value;
 
@@ -50,41 +50,6 @@ fn cut_words(c: &Value) -> Vec<(f64, f64, String)> {
                 f(&w["end"]),
                 w["text"].as_str().unwrap().into(),
             )
-        })
-        .collect()
-}
-
-/// Mean power of `x` over [a, b) seconds (clipped to the audio); as tests/demo_alignment.rs.
-fn power(x: &[f32], rate: u32, a: f64, b: f64) -> f64 {
-    let i = ((a * f64::from(rate)).round().max(0.0) as usize).min(x.len());
-    let j = ((b * f64::from(rate)).round().max(0.0) as usize).min(x.len());
-    if j <= i {
-        return 0.0;
-    }
-    x[i..j].iter().map(|&s| f64::from(s).powi(2)).sum::<f64>() / (j - i) as f64
-}
-
-/// Per word: how much louder (dB, negative = quieter) the 40 ms just outside it are than the
-/// word, margins stopping at the neighbouring words; as tests/demo_alignment.rs.
-fn outside_minus_inside_db(x: &[f32], rate: u32, words: &[(f64, f64)]) -> Vec<f64> {
-    const MARGIN: f64 = 0.04;
-    words
-        .iter()
-        .enumerate()
-        .map(|(i, &(s, e))| {
-            let from = if i > 0 {
-                (s - MARGIN).max(words[i - 1].1)
-            } else {
-                s - MARGIN
-            };
-            let to = if i + 1 < words.len() {
-                (e + MARGIN).min(words[i + 1].0)
-            } else {
-                e + MARGIN
-            };
-            let inside = power(x, rate, s, e);
-            let outside = power(x, rate, from, s).max(power(x, rate, e, to));
-            10.0 * (outside.max(1e-12) / inside).log10()
         })
         .collect()
 }

@@ -167,6 +167,21 @@ fn burst_annotation_follows_speed_and_room_to_two_ms() {
     );
 }
 
+/// `retake remap dir/<manifest> dir/labels -o dir/moved`: exit code and stderr.
+fn remap(dir: &Path, manifest: &str) -> (Option<i32>, String) {
+    let o = retake(&[
+        "remap",
+        dir.join(manifest).to_str().unwrap(),
+        dir.join("labels").to_str().unwrap(),
+        "-o",
+        dir.join("moved").to_str().unwrap(),
+    ]);
+    (
+        o.status.code(),
+        String::from_utf8_lossy(&o.stderr).into_owned(),
+    )
+}
+
 #[test]
 fn missing_annotations_and_non_takes_are_listed() {
     let tmp = tempfile::tempdir().unwrap();
@@ -178,26 +193,12 @@ fn missing_annotations_and_non_takes_are_listed() {
     let (code, err, _) = run_recipe(tmp.path(), recipe, &tmp.path().join("in.jsonl"));
     assert_eq!(code, Some(0), "{err}");
     // The source manifest is not a run's output: its line is named.
-    let o = retake(&[
-        "remap",
-        tmp.path().join("in.jsonl").to_str().unwrap(),
-        tmp.path().join("labels").to_str().unwrap(),
-        "-o",
-        tmp.path().join("moved").to_str().unwrap(),
-    ]);
-    let err = String::from_utf8_lossy(&o.stderr);
-    assert_eq!(o.status.code(), Some(3), "{err}");
+    let (code, err) = remap(tmp.path(), "in.jsonl");
+    assert_eq!(code, Some(3), "{err}");
     assert!(err.contains("in.jsonl line 1: origin:"), "{err}");
-    let o = retake(&[
-        "remap",
-        tmp.path().join("out/manifest.jsonl").to_str().unwrap(),
-        tmp.path().join("labels").to_str().unwrap(),
-        "-o",
-        tmp.path().join("moved").to_str().unwrap(),
-    ]);
-    let err = String::from_utf8_lossy(&o.stderr);
+    let (code, err) = remap(tmp.path(), "out/manifest.jsonl");
     // Listed, but not a failure: not every clip has every kind of annotation.
-    assert_eq!(o.status.code(), Some(0), "{err}");
+    assert_eq!(code, Some(0), "{err}");
     assert!(
         err.contains("no annotation for source clip `yard/bursts`"),
         "{err}"
@@ -209,14 +210,7 @@ fn missing_annotations_and_non_takes_are_listed() {
         "WEBVTT\n\n00:01.000 --> 00:00.500\nbeep\n",
     )
     .unwrap();
-    let o = retake(&[
-        "remap",
-        tmp.path().join("out/manifest.jsonl").to_str().unwrap(),
-        tmp.path().join("labels").to_str().unwrap(),
-        "-o",
-        tmp.path().join("moved").to_str().unwrap(),
-    ]);
-    let err = String::from_utf8_lossy(&o.stderr);
-    assert_eq!(o.status.code(), Some(3), "{err}");
+    let (code, err) = remap(tmp.path(), "out/manifest.jsonl");
+    assert_eq!(code, Some(3), "{err}");
     assert!(err.contains("bursts.vtt line 3:"), "{err}");
 }

@@ -9,6 +9,7 @@ use super::{CUTS_DIR, CutReject, CutSpec, LeftOutRecord};
 use crate::audio::Audio;
 use crate::files::file_stem;
 use crate::files::write_wav_atomically;
+use crate::run::Reject;
 use crate::transcript::{Clip, Entry, Manifest, validate};
 
 /// What one source clip gave.
@@ -35,10 +36,12 @@ pub(super) fn cut_clip(
     let clip = &entry.clip;
     let reject = |field: &str, reason: String| CutReject {
         file: manifest.path.display().to_string(),
-        line: entry.line,
-        id: Some(clip.id.clone()),
-        field: field.to_string(),
-        reason,
+        reject: Reject {
+            line: entry.line,
+            id: Some(clip.id.clone()),
+            field: field.to_string(),
+            reason,
+        },
     };
     if let Some((field, reason)) = validate(clip, None).into_iter().next() {
         return Err(reject(&field, reason));

@@ -27,7 +27,7 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use crate::audio::{ChannelPolicy, SampleFormat};
-use crate::run::{MANIFEST_NAME, REJECTS_NAME, RunError, write_atomically};
+use crate::run::{MANIFEST_NAME, REJECTS_NAME, Reject, RunError, write_atomically};
 use crate::transcript::{read_manifest, write_manifest};
 use plan::{Limits, PadRange, PlanSpec, Reason};
 
@@ -86,21 +86,15 @@ pub struct LeftOutRecord {
     pub detail: String,
 }
 
-/// One line of `rejects.jsonl`: a clip that could not be cut at all.
+/// One line of `rejects.jsonl`: a clip that could not be cut at all. The fields of a run's
+/// reject, plus the manifest it came from.
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct CutReject {
     /// The manifest.
     pub file: String,
-    /// Line of the manifest.
-    pub line: usize,
-    /// Clip id, when the line got that far.
-    #[serde(skip_serializing_if = "Option::is_none")]
-    pub id: Option<String>,
-    /// The field at fault, when one is.
-    #[serde(skip_serializing_if = "String::is_empty")]
-    pub field: String,
-    /// What went wrong.
-    pub reason: String,
+    /// Line, id, field and reason.
+    #[serde(flatten)]
+    pub reject: Reject,
 }
 
 /// Figures for the closing summary.
@@ -171,10 +165,7 @@ pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
         .iter()
         .map(|p| CutReject {
             file: p.file.display().to_string(),
-            line: p.line,
-            id: None,
-            field: p.field.clone(),
-            reason: p.message.clone(),
+            reject: Reject::from(p.clone()),
         })
         .collect();
     let (mut cuts, mut left_out) = (Vec::new(), Vec::new());
@@ -192,7 +183,7 @@ pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
             Err(r) => rejects.push(r),
         }
     }
-    rejects.sort_by_key(|r| r.line);
+    rejects.sort_by_key(|r| r.reject.line);
     summary.rejected = rejects.len();
     summary.left_out = left_out.len();
     write_atomically(&spec.out.join(MANIFEST_NAME), |w| write_manifest(w, &cuts))?;

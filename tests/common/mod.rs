@@ -242,3 +242,38 @@ pub fn onset_near(y: &[f32], rate: u32, t: f64, fraction: f32) -> f64 {
     let i = (a..b).find(|&i| y[i].abs() >= fraction * max).unwrap();
     i as f64 / f64::from(rate)
 }
+
+/// Mean power of `x` over [a, b) seconds (clipped to the audio).
+pub fn power(x: &[f32], rate: u32, a: f64, b: f64) -> f64 {
+    let i = ((a * f64::from(rate)).round().max(0.0) as usize).min(x.len());
+    let j = ((b * f64::from(rate)).round().max(0.0) as usize).min(x.len());
+    if j <= i {
+        return 0.0;
+    }
+    x[i..j].iter().map(|&s| f64::from(s).powi(2)).sum::<f64>() / (j - i) as f64
+}
+
+/// For each word: how much quieter (dB) the 40 ms just outside it is than the word itself.
+/// The margins stop at the neighbouring words so they only cover the gaps.
+pub fn outside_minus_inside_db(x: &[f32], rate: u32, words: &[(f64, f64)]) -> Vec<f64> {
+    const MARGIN: f64 = 0.04;
+    words
+        .iter()
+        .enumerate()
+        .map(|(i, &(s, e))| {
+            let before_from = if i > 0 {
+                (s - MARGIN).max(words[i - 1].1)
+            } else {
+                s - MARGIN
+            };
+            let after_to = if i + 1 < words.len() {
+                (e + MARGIN).min(words[i + 1].0)
+            } else {
+                e + MARGIN
+            };
+            let inside = power(x, rate, s, e);
+            let outside = power(x, rate, before_from, s).max(power(x, rate, e, after_to));
+            10.0 * (outside.max(1e-12) / inside).log10()
+        })
+        .collect()
+}
