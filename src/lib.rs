@@ -28,7 +28,6 @@
 
 pub mod audio;
 pub mod check;
-pub mod cut;
 pub mod dsp;
 pub mod export;
 pub mod files;
@@ -39,6 +38,7 @@ pub mod remap;
 pub mod room;
 pub mod run;
 pub mod seed;
+pub mod slice;
 pub mod steps;
 pub mod timemap;
 pub mod transcript;

@@ -117,7 +117,7 @@ pub fn scan(path: &Path, channels: ChannelPolicy) -> Result<Scan, AudioError> {
 }
 
 /// A file decoded packet by packet, for callers that must not hold a long recording whole
-/// (`cut`). Same formats, channel policy and checks as [`decode`], which is built on it: the
+/// (`slice`). Same formats, channel policy and checks as [`decode`], which is built on it: the
 /// length check against the header happens when the stream ends.
 pub struct Stream {
     path: PathBuf,

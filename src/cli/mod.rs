@@ -2,11 +2,11 @@
 
 mod bank;
 mod check;
-mod cut;
 mod export;
 mod import;
 mod remap;
 mod run;
+mod slice;
 
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -48,7 +48,7 @@ enum Command {
         manifest: PathBuf,
     },
     /// Split long recordings into clips between two lengths, only in gaps between words.
-    Cut(cut::CutArgs),
+    Slice(slice::SliceArgs),
     /// Describe a noise bank: per file its part, length, level, centroid and steadiness.
     Bank {
         /// The bank folder (first-level subfolders are categories).
@@ -141,7 +141,7 @@ pub fn main() -> ExitCode {
             rate,
             held_out,
         } => bank::bank(&dir, rate, held_out),
-        Command::Cut(args) => cut::cut(args),
+        Command::Slice(args) => slice::slice(args),
         Command::Import { dir, out, channels } => import::import(&dir, out.as_deref(), channels),
         Command::Export {
             manifest,

@@ -1,13 +1,13 @@
-//! Choosing where to cut a clip: pure arithmetic over its [`Units`], no audio, no I/O.
+//! Choosing where to slice a clip: pure arithmetic over its [`Units`], no audio, no I/O.
 //!
 //! # The rule
-//! A cut (one output clip) holds a run of consecutive units plus padding on each side. It is
+//! A slice (one output clip) holds a run of consecutive units plus padding on each side. It is
 //! possible when its speech span (first unit's start to last unit's end) is at most the
-//! longest length, and speech plus all the silence it may take reaches the shortest. A cut
-//! may take silence up to half the gap to each neighbouring unit (so cuts never overlap), or
+//! longest length, and speech plus all the silence it may take reaches the shortest. A slice
+//! may take silence up to half the gap to each neighbouring unit (so slices never overlap), or
 //! up to the recording's edge beyond the first and last unit.
 //!
-//! Among all ways to split the units into possible cuts and left-out units, a dynamic
+//! Among all ways to split the units into possible slices and left-out units, a dynamic
 //! programme picks the one that, compared in this order:
 //! 1. leaves out the least speech (samples), then the fewest units;
 //! 2. splits the fewest lines (a boundary in a gap between two words of one line);
@@ -19,9 +19,9 @@
 //! # Padding
 //! Each gap (before the first unit, between units, after the last) has its own stream,
 //! `TakeRng(stable_hash(seed, clip id, gap index))`, which draws two pads in order: the pad
-//! after the cut ending at that gap, then the pad before the cut starting there. So a pad does
-//! not depend on where other cuts fall. A pad is held to the silence available on its side;
-//! if the cut is then shorter than the shortest, both pads grow (evenly, then whichever side
+//! after the slice ending at that gap, then the pad before the slice starting there. So a pad does
+//! not depend on where other slices fall. A pad is held to the silence available on its side;
+//! if the slice is then shorter than the shortest, both pads grow (evenly, then whichever side
 //! still has silence); if it is longer than the longest, both shrink the same way.
 
 use std::ops::Range;
@@ -29,7 +29,7 @@ use std::ops::Range;
 use super::units::Units;
 use crate::seed::{TakeRng, stable_hash};
 
-/// Shortest and longest length of a cut, padding included.
+/// Shortest and longest length of a slice, padding included.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Limits {
     /// Seconds, at least 0.
@@ -116,9 +116,9 @@ pub struct PlanSpec {
     pub seed: u64,
 }
 
-/// One planned cut: units `units` and samples `start..end` of the recording.
+/// One planned slice: units `units` and samples `start..end` of the recording.
 #[derive(Debug, Clone, PartialEq, Eq)]
-pub struct PlannedCut {
+pub struct PlannedSlice {
     /// Indices of the units it holds.
     pub units: Range<usize>,
     /// First sample.
@@ -131,9 +131,9 @@ pub struct PlannedCut {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Reason {
-    /// A unit is longer than the longest cut: there is no gap to cut it at.
+    /// A unit is longer than the longest slice: there is no gap to slice it at.
     TooLong,
-    /// The units cannot reach the shortest cut with the silence around them, and cannot
+    /// The units cannot reach the shortest slice with the silence around them, and cannot
     /// join a neighbour within the longest.
     TooShort,
 }
@@ -147,13 +147,13 @@ pub struct LeftOut {
     pub reason: Reason,
 }
 
-/// A clip's plan: cuts and left-out stretches, each in time order; every unit is in exactly
+/// A clip's plan: slices and left-out stretches, each in time order; every unit is in exactly
 /// one of them.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Plan {
-    /// The cuts.
-    pub cuts: Vec<PlannedCut>,
-    /// What could not be cut within the limits.
+    /// The slices.
+    pub slices: Vec<PlannedSlice>,
+    /// What could not be sliced within the limits.
     pub left_out: Vec<LeftOut>,
 }
 
@@ -180,13 +180,13 @@ impl Score {
 
 #[derive(Debug, Clone, Copy)]
 enum Step {
-    /// Units `from..here` form a cut.
-    Cut { from: usize },
+    /// Units `from..here` form a slice.
+    Slice { from: usize },
     /// The unit before `here` is left out.
     Leave,
 }
 
-/// Plan the cuts of a clip of `total` samples at `rate` whose labels make `units`.
+/// Plan the slices of a clip of `total` samples at `rate` whose labels make `units`.
 pub fn plan(units: &Units, total: u64, rate: u32, spec: &PlanSpec, clip_id: &str) -> Plan {
     let u = &units.units;
     let n = u.len();
@@ -233,7 +233,7 @@ pub fn plan(units: &Units, total: u64, rate: u32, spec: &PlanSpec, clip_id: &str
             if span + room_before(i) + room_after(j - 1) >= min {
                 let s = boundary(j, best[i].0);
                 if choice.is_none_or(|(c, _)| s.better_than(&c)) {
-                    choice = Some((s, Step::Cut { from: i }));
+                    choice = Some((s, Step::Slice { from: i }));
                 }
             }
         }
@@ -253,13 +253,13 @@ pub fn plan(units: &Units, total: u64, rate: u32, spec: &PlanSpec, clip_id: &str
     }
 
     // Walk back from the end, then put the pieces in time order.
-    let mut cuts = Vec::new();
+    let mut slices = Vec::new();
     let mut left: Vec<usize> = Vec::new();
     let mut j = n;
     while j > 0 {
         match best[j].1 {
-            Step::Cut { from } => {
-                cuts.push(from..j);
+            Step::Slice { from } => {
+                slices.push(from..j);
                 j = from;
             }
             Step::Leave => {
@@ -268,7 +268,7 @@ pub fn plan(units: &Units, total: u64, rate: u32, spec: &PlanSpec, clip_id: &str
             }
         }
     }
-    cuts.reverse();
+    slices.reverse();
     left.reverse();
 
     let draws = |gap: usize| -> (f64, f64) {
@@ -283,7 +283,7 @@ pub fn plan(units: &Units, total: u64, rate: u32, spec: &PlanSpec, clip_id: &str
         (after, before)
     };
     let to_samples = |s: f64| (s * f64::from(rate)).round() as u64;
-    let cuts = cuts
+    let slices = slices
         .into_iter()
         .map(|range| {
             let (first, last) = (range.start, range.end - 1);
@@ -296,7 +296,7 @@ pub fn plan(units: &Units, total: u64, rate: u32, spec: &PlanSpec, clip_id: &str
                 (want_after, room_after(last)),
                 (min, max),
             );
-            PlannedCut {
+            PlannedSlice {
                 start: u[first].start - before,
                 end: u[last].end + after,
                 units: range,
@@ -321,7 +321,7 @@ pub fn plan(units: &Units, total: u64, rate: u32, spec: &PlanSpec, clip_id: &str
             }),
         }
     }
-    Plan { cuts, left_out }
+    Plan { slices, left_out }
 }
 
 /// Pads (before, after) in samples for `speech` samples, from the wanted pads and the
@@ -360,7 +360,7 @@ fn share(need: u64, left: u64, right: u64) -> (u64, u64) {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::cut::units::Unit;
+    use crate::slice::units::Unit;
 
     /// Units from (start, end) sample spans; `inside` flags the gaps inside a line.
     fn units(spans: &[(u64, u64)], inside: &[bool]) -> Units {
@@ -406,8 +406,8 @@ mod tests {
         // Gaps inside line 1: 0.4 s then 0.2 s; inside line 2: 0.3 s then 0.2 s.
         let spans = [(0, 5), (9, 14), (16, 21), (27, 32), (35, 40), (42, 47)];
         let inside = [true, true, false, true, true];
-        let ranges = |p: &Plan| p.cuts.iter().map(|c| c.units.clone()).collect::<Vec<_>>();
-        // Longest 3 s: one boundary, at the gap between the lines (cut 4 would fit too).
+        let ranges = |p: &Plan| p.slices.iter().map(|c| c.units.clone()).collect::<Vec<_>>();
+        // Longest 3 s: one boundary, at the gap between the lines (slice 4 would fit too).
         let p = plan(&units(&spans, &inside), 50, 10, &spec(0.0, 3.0, 0.0), "x");
         assert_eq!(ranges(&p), [0..3, 3..6]);
         // Longest 1.5 s: each line must be split once, at its longer pause.
@@ -442,8 +442,8 @@ mod tests {
             ]
         );
         assert_eq!(
-            p.cuts,
-            [PlannedCut {
+            p.slices,
+            [PlannedSlice {
                 units: 2..3,
                 start: 53,
                 end: 78
@@ -456,7 +456,12 @@ mod tests {
         // At 10 Hz: units at 0-1 s, 3.0-3.4 s and 5.4-7.4 s of an 8 s recording; the
         // middle one has 1.0 s of half-gap on each side. Pads of 0.1 s.
         let spans = [(0, 10), (30, 34), (54, 74)];
-        let bounds = |p: &Plan| p.cuts.iter().map(|c| (c.start, c.end)).collect::<Vec<_>>();
+        let bounds = |p: &Plan| {
+            p.slices
+                .iter()
+                .map(|c| (c.start, c.end))
+                .collect::<Vec<_>>()
+        };
         // Limits 0.5..1.5 s: the drawn pads fit (none before the recording's start); the
         // 2 s unit is too long.
         let p = plan(

@@ -1,25 +1,25 @@
-//! `retake cut`: parse the options, cut, print one closing summary.
+//! `retake slice`: parse the options, slice, print one closing summary.
 
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 use retake::audio::{ChannelPolicy, SampleFormat};
-use retake::cut::plan::{Limits, PadRange};
-use retake::cut::{self, CutSpec, CutSummary, LEFT_OUT_NAME};
 use retake::run::{MANIFEST_NAME, REJECTS_NAME};
+use retake::slice::plan::{Limits, PadRange};
+use retake::slice::{self, LEFT_OUT_NAME, SliceSpec, SliceSummary};
 
-/// Options of `retake cut`.
+/// Options of `retake slice`.
 #[derive(Debug, clap::Args)]
-pub struct CutArgs {
+pub struct SliceArgs {
     /// Input manifest (JSON Lines, one clip per line).
     manifest: PathBuf,
-    /// Output folder: cuts/, manifest.jsonl, left_out.jsonl and rejects.jsonl are written here.
+    /// Output folder: slices/, manifest.jsonl, left_out.jsonl and rejects.jsonl are written here.
     #[arg(long, short)]
     out: PathBuf,
-    /// Shortest cut in seconds, padding included.
+    /// Shortest slice in seconds, padding included.
     #[arg(long, value_name = "SECONDS", default_value_t = 2.0)]
     shortest: f64,
-    /// Longest cut in seconds, padding included.
+    /// Longest slice in seconds, padding included.
     #[arg(long, value_name = "SECONDS", default_value_t = 15.0)]
     longest: f64,
     /// Silence kept on each side of the speech, seconds: a value or LOW..HIGH drawn
@@ -53,18 +53,18 @@ fn parse_pad(s: &str) -> Result<(f64, f64), String> {
     }
 }
 
-/// Run `retake cut`.
-pub fn cut(args: CutArgs) -> ExitCode {
+/// Run `retake slice`.
+pub fn slice(args: SliceArgs) -> ExitCode {
     let checked = Limits::new(args.shortest, args.longest)
         .and_then(|limits| PadRange::new(args.pad.0, args.pad.1).map(|pad| (limits, pad)));
     let (limits, pad) = match checked {
         Ok(v) => v,
         Err(e) => {
-            eprintln!("retake: cut: {e}");
+            eprintln!("retake: slice: {e}");
             return ExitCode::from(2);
         }
     };
-    let spec = CutSpec {
+    let spec = SliceSpec {
         input: &args.manifest,
         out: &args.out,
         limits,
@@ -78,7 +78,7 @@ pub fn cut(args: CutArgs) -> ExitCode {
         channels: args.channels,
         threads: args.threads,
     };
-    match cut::cut(&spec) {
+    match slice::slice(&spec) {
         Err(e) => {
             eprintln!("retake: {e}");
             ExitCode::FAILURE
@@ -94,12 +94,12 @@ pub fn cut(args: CutArgs) -> ExitCode {
     }
 }
 
-fn print_summary(s: &CutSummary, out: &Path) {
+fn print_summary(s: &SliceSummary, out: &Path) {
     println!(
-        "{} clips in, {} cuts out ({:.3} h of audio), {:.3} h of speech kept, {} stretches \
+        "{} clips in, {} slices out ({:.3} h of audio), {:.3} h of speech kept, {} stretches \
          left out ({:.1} s of speech), {} rejected; {:.1} s",
         s.clips_in,
-        s.cuts,
+        s.slices,
         s.seconds_out / 3600.0,
         s.speech_kept / 3600.0,
         s.left_out,

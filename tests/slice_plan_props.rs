@@ -1,13 +1,13 @@
-//! Property tests for the cut planner on random label sets (lines with words of random
+//! Property tests for the slice planner on random label sets (lines with words of random
 //! lengths and gaps, lines without words, some very long, lines overlapping their
-//! predecessors): every cut is within the limits and inside the recording, cuts are in
-//! order and do not overlap, no cut boundary falls inside a word or a line without words,
-//! every label is in exactly one cut or one left-out stretch, and speech is conserved.
+//! predecessors): every slice is within the limits and inside the recording, slices are in
+//! order and do not overlap, no slice boundary falls inside a word or a line without words,
+//! every label is in exactly one slice or one left-out stretch, and speech is conserved.
 //! Everything is checked against the raw label times, not the planner's own units.
 
 use proptest::prelude::*;
-use retake::cut::plan::{Limits, PadRange, PlanSpec, Reason, plan};
-use retake::cut::units::find_units;
+use retake::slice::plan::{Limits, PadRange, PlanSpec, Reason, plan};
+use retake::slice::units::find_units;
 use retake::transcript::{Line, Word};
 
 #[derive(Debug, Clone)]
@@ -76,7 +76,7 @@ fn build(lead_in: f64, shapes: &[(f64, Shape)], tail: f64) -> (Vec<Line>, f64) {
     (lines, cursor + tail)
 }
 
-/// Spans no cut may cut: words, and lines without words.
+/// Spans no slice may slice: words, and lines without words.
 fn labels(lines: &[Line]) -> Vec<(f64, f64)> {
     lines
         .iter()
@@ -138,19 +138,19 @@ proptest! {
         let p = plan(&units, total, rate, &spec, "session-7");
 
         // Limits, to a sample, padding included; inside the recording; in order, apart.
-        for c in &p.cuts {
+        for c in &p.slices {
             let n = (c.end - c.start) as f64;
             prop_assert!(n >= shortest * r - 1e-6 && n <= longest * r + 1e-6,
-                "cut {c:?}: {} s outside {shortest}..{longest}", n / r);
+                "slice {c:?}: {} s outside {shortest}..{longest}", n / r);
             prop_assert!(c.end <= total);
         }
-        for w in p.cuts.windows(2) {
+        for w in p.slices.windows(2) {
             prop_assert!(w[0].end <= w[1].start, "{:?} overlaps {:?}", w[0], w[1]);
         }
 
         // No boundary inside a word, a line without words, or a line's edge beyond its
         // words (only gaps between words may split a line).
-        for c in &p.cuts {
+        for c in &p.slices {
             for b in [c.start, c.end] {
                 let t = b as f64 / r;
                 for (s, e) in labels(&lines) {
@@ -164,7 +164,7 @@ proptest! {
             }
         }
 
-        // Every label in exactly one cut or one left-out stretch.
+        // Every label in exactly one slice or one left-out stretch.
         let stretch = |k: usize| {
             let range = &p.left_out[k].units;
             (units.units[range.start].start, units.units[range.end - 1].end)
@@ -172,35 +172,35 @@ proptest! {
         let inside = |(s, e): (f64, f64), (a, b): (u64, u64)| {
             s >= a as f64 / r - EPS && e <= b as f64 / r + EPS
         };
-        let mut kept = vec![Vec::new(); p.cuts.len()];
+        let mut kept = vec![Vec::new(); p.slices.len()];
         let mut left = vec![Vec::new(); p.left_out.len()];
         for span in labels(&lines) {
-            let in_cuts: Vec<usize> = (0..p.cuts.len())
-                .filter(|&k| inside(span, (p.cuts[k].start, p.cuts[k].end)))
+            let in_slices: Vec<usize> = (0..p.slices.len())
+                .filter(|&k| inside(span, (p.slices[k].start, p.slices[k].end)))
                 .collect();
             let in_left: Vec<usize> = (0..p.left_out.len())
                 .filter(|&k| inside(span, stretch(k)))
                 .collect();
-            prop_assert_eq!(in_cuts.len() + in_left.len(), 1, "label {:?}", span);
-            if let Some(&k) = in_cuts.first() {
+            prop_assert_eq!(in_slices.len() + in_left.len(), 1, "label {:?}", span);
+            if let Some(&k) = in_slices.first() {
                 kept[k].push(span);
             } else {
                 left[in_left[0]].push(span);
             }
         }
-        // The units too: each index exactly once, cuts and stretches in time order.
-        let mut seen: Vec<usize> = p.cuts.iter().flat_map(|c| c.units.clone())
+        // The units too: each index exactly once, slices and stretches in time order.
+        let mut seen: Vec<usize> = p.slices.iter().flat_map(|c| c.units.clone())
             .chain(p.left_out.iter().flat_map(|l| l.units.clone()))
             .collect();
         seen.sort_unstable();
         prop_assert_eq!(seen, (0..units.units.len()).collect::<Vec<_>>());
 
-        // Speech in cuts + left out = speech in the input.
+        // Speech in slices + left out = speech in the input.
         let all = union(labels(&lines));
         let parts: f64 = kept.into_iter().chain(left).map(union).sum();
         prop_assert!((all - parts).abs() < 1e-6, "speech {all} s in, {parts} s out");
 
-        // Nothing left out that could have been a cut on its own (the first rule of the
+        // Nothing left out that could have been a slice on its own (the first rule of the
         // plan), and each reason matches the lengths.
         let u = &units.units;
         let (min, max) = spec.limits.in_samples(rate);
@@ -216,11 +216,11 @@ proptest! {
     }
 
     #[test]
-    fn a_pad_does_not_depend_on_other_cuts(
+    fn a_pad_does_not_depend_on_other_slices(
         shapes in prop::collection::vec((0.3f64..3.0, arb_shape()), 2..12),
         seed in any::<u64>(),
     ) {
-        // Two plans of the same labels with different limits: a cut boundary at the same
+        // Two plans of the same labels with different limits: a slice boundary at the same
         // gap, unclamped by limits or room in both, gets the same pad.
         let (lines, duration) = build(1.0, &shapes, 1.0);
         let rate = 16_000;
@@ -232,11 +232,11 @@ proptest! {
             plan(&units, total, rate, &spec, "session-7")
         };
         let (a, b) = (plan_with(8.0), plan_with(30.0));
-        for ca in &a.cuts {
-            for cb in b.cuts.iter().filter(|cb| cb.units.start == ca.units.start) {
+        for ca in &a.slices {
+            for cb in b.slices.iter().filter(|cb| cb.units.start == ca.units.start) {
                 let (pa, pb) = (units.units[ca.units.start].start - ca.start, units.units[cb.units.start].start - cb.start);
                 // Shrinking only happens when speech + pads exceed the longest.
-                let roomy = |c: &retake::cut::plan::PlannedCut, longest: f64| {
+                let roomy = |c: &retake::slice::plan::PlannedSlice, longest: f64| {
                     ((c.end - c.start) as f64) < longest * 16_000.0 - 1.0
                 };
                 if roomy(ca, 8.0) && roomy(cb, 30.0) {

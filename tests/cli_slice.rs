@@ -1,4 +1,4 @@
-//! `retake cut` end to end on a long session built from the demo (tests/common/session.rs)
+//! `retake slice` end to end on a long session built from the demo (tests/common/session.rs)
 //! and on small made-up clips: limits, words kept whole and in place, samples equal to the
 //! source's (read back by soundfile), word energy inside the rewritten timings, left-out
 //! stretches, rejects and thread-count independence.
@@ -12,10 +12,10 @@ use common::{outside_minus_inside_db, read_jsonl, retake, run_python};
 use retake::audio::{self, ChannelPolicy};
 use serde_json::Value;
 
-/// Run `retake cut` on `manifest` into `out` with extra options; (exit code, stdout).
-fn cut(manifest: &Path, out: &Path, options: &[&str]) -> (Option<i32>, String) {
+/// Run `retake slice` on `manifest` into `out` with extra options; (exit code, stdout).
+fn slice(manifest: &Path, out: &Path, options: &[&str]) -> (Option<i32>, String) {
     let mut args = vec![
-        "cut",
+        "slice",
         manifest.to_str().unwrap(),
         "-o",
         out.to_str().unwrap(),
@@ -24,7 +24,7 @@ fn cut(manifest: &Path, out: &Path, options: &[&str]) -> (Option<i32>, String) {
     let o = retake(&args);
     assert!(
         o.status.code().is_some_and(|c| c == 0 || c == 3),
-        "retake cut failed: {}",
+        "retake slice failed: {}",
         String::from_utf8_lossy(&o.stderr)
     );
     (
@@ -37,8 +37,8 @@ fn f(v: &Value) -> f64 {
     v.as_f64().unwrap_or_else(|| panic!("not a number: {v}"))
 }
 
-/// Words of a cut record as (start, end, text), in its own timeline.
-fn cut_words(c: &Value) -> Vec<(f64, f64, String)> {
+/// Words of a slice record as (start, end, text), in its own timeline.
+fn slice_words(c: &Value) -> Vec<(f64, f64, String)> {
     c["lines"]
         .as_array()
         .unwrap()
@@ -54,57 +54,57 @@ fn cut_words(c: &Value) -> Vec<(f64, f64, String)> {
         .collect()
 }
 
-/// Everything a cut of the session must satisfy, for limits `shortest..=longest`.
-/// `float`: the cuts were written as float WAV (samples must be equal), else 16-bit PCM.
-fn check_session_cuts(s: &Session, out: &Path, shortest: f64, longest: f64, float: bool) {
-    let cuts = read_jsonl(&out.join("manifest.jsonl"));
+/// Everything a slice of the session must satisfy, for limits `shortest..=longest`.
+/// `float`: the slices were written as float WAV (samples must be equal), else 16-bit PCM.
+fn check_session_slices(s: &Session, out: &Path, shortest: f64, longest: f64, float: bool) {
+    let slices = read_jsonl(&out.join("manifest.jsonl"));
     let source_words = s.words();
-    // Every word is in a cut and no cut is longer than `longest`.
+    // Every word is in a slice and no slice is longer than `longest`.
     let word_time: f64 = source_words.iter().map(|w| w.1 - w.0).sum();
     assert!(word_time > 60.0);
     assert!(
-        cuts.len() as f64 >= word_time / longest,
-        "only {} cuts",
-        cuts.len()
+        slices.len() as f64 >= word_time / longest,
+        "only {} slices",
+        slices.len()
     );
     let mut words_back = Vec::new();
     let mut split_lines = 0;
-    for (k, c) in cuts.iter().enumerate() {
+    for (k, c) in slices.iter().enumerate() {
         assert_eq!(c["id"], format!("fjellvik-night-shift.c{k}"));
-        assert_eq!(c["audio"], format!("cuts/fjellvik-night-shift.c{k}.wav"));
+        assert_eq!(c["audio"], format!("slices/fjellvik-night-shift.c{k}.wav"));
         assert_eq!(c["site"], "fjellvik-cold-store");
         assert_eq!(c["shift"], "night");
         let (d, from, to) = (
             f(&c["duration"]),
-            f(&c["cut"]["start"]),
-            f(&c["cut"]["end"]),
+            f(&c["slice"]["start"]),
+            f(&c["slice"]["end"]),
         );
-        assert_eq!(c["cut"]["source"], "fjellvik-night-shift");
-        assert_eq!(c["cut"]["audio"], "session.wav");
+        assert_eq!(c["slice"]["source"], "fjellvik-night-shift");
+        assert_eq!(c["slice"]["audio"], "session.wav");
         assert!(
             d >= shortest - 1e-9 && d <= longest + 1e-9,
-            "cut {k}: {d} s outside {shortest}..{longest}"
+            "slice {k}: {d} s outside {shortest}..{longest}"
         );
         assert!((to - from - d).abs() < 1e-9);
         for t in [from, to] {
             let n = t * f64::from(RATE);
             assert!(
                 (n - n.round()).abs() < 1e-6,
-                "cut {k}: {t} s is not on a sample"
+                "slice {k}: {t} s is not on a sample"
             );
         }
         for line in c["lines"].as_array().unwrap() {
             let (ls, le) = (f(&line["start"]), f(&line["end"]));
             assert!(
                 0.0 <= ls && ls <= le && le <= d,
-                "cut {k}: line {ls}..{le} of {d}"
+                "slice {k}: line {ls}..{le} of {d}"
             );
             let words = line["words"].as_array().unwrap();
             for w in words {
                 let (ws, we) = (f(&w["start"]), f(&w["end"]));
                 assert!(
                     ls <= ws && ws <= we && we <= le,
-                    "cut {k}: word outside its line"
+                    "slice {k}: word outside its line"
                 );
             }
             let joined: Vec<&str> = words.iter().map(|w| w["text"].as_str().unwrap()).collect();
@@ -116,11 +116,11 @@ fn check_session_cuts(s: &Session, out: &Path, shortest: f64, longest: f64, floa
                 });
             if !whole {
                 // A part of a split line: its text is its words' texts.
-                assert_eq!(line["text"], joined.join(" "), "cut {k} ({from_clip})");
+                assert_eq!(line["text"], joined.join(" "), "slice {k} ({from_clip})");
                 split_lines += 1;
             }
         }
-        for (ws, we, text) in cut_words(c) {
+        for (ws, we, text) in slice_words(c) {
             words_back.push((ws + from, we + from, text));
         }
     }
@@ -137,29 +137,29 @@ fn check_session_cuts(s: &Session, out: &Path, shortest: f64, longest: f64, floa
     // Total word time kept, within 1 ms per word (the brief's tolerance).
     assert!((sum_in - sum_out).abs() < 1e-3 * source_words.len() as f64);
 
-    // Cuts in order and apart.
-    for w in cuts.windows(2) {
-        assert!(f(&w[0]["cut"]["end"]) <= f(&w[1]["cut"]["start"]) + 1e-12);
+    // Slices in order and apart.
+    for w in slices.windows(2) {
+        assert!(f(&w[0]["slice"]["end"]) <= f(&w[1]["slice"]["start"]) + 1e-12);
     }
 
-    samples_match_the_session(s, out, &cuts, float);
-    energy_lies_inside_words(s, out, &cuts);
+    samples_match_the_session(s, out, &slices, float);
+    energy_lies_inside_words(s, out, &slices);
     if longest < 3.0 {
         assert!(split_lines >= 4, "only {split_lines} split lines");
     }
 }
 
-/// Each cut's samples equal the session's from its `cut.start`, read by soundfile.
-/// Reference: soundfile (libsndfile) reading both files; numpy compares. Float cuts must be
-/// equal; 16-bit cuts hold round(x · 32767) (the scale documented on retake's writer), so
+/// Each slice's samples equal the session's from its `slice.start`, read by soundfile.
+/// Reference: soundfile (libsndfile) reading both files; numpy compares. Float slices must be
+/// equal; 16-bit slices hold round(x · 32767) (the scale documented on retake's writer), so
 /// within half a step plus float rounding. Control: one sample later the match must fail.
-fn samples_match_the_session(s: &Session, out: &Path, cuts: &[Value], float: bool) {
-    let list: Vec<Value> = cuts
+fn samples_match_the_session(s: &Session, out: &Path, slices: &[Value], float: bool) {
+    let list: Vec<Value> = slices
         .iter()
         .map(|c| {
             serde_json::json!({
                 "path": out.join(c["audio"].as_str().unwrap()),
-                "start": f(&c["cut"]["start"]),
+                "start": f(&c["slice"]["start"]),
                 "duration": f(&c["duration"]),
             })
         })
@@ -193,30 +193,34 @@ print(json.dumps(rows))
     .unwrap();
     std::fs::remove_file(list_path).unwrap();
     for (k, row) in rows.iter().enumerate() {
-        assert_eq!(row[0], f64::from(RATE), "cut {k}: rate");
-        assert_eq!(row[1], row[2], "cut {k}: length vs duration");
-        assert_eq!(row[1], row[3], "cut {k}: runs past the session");
+        assert_eq!(row[0], f64::from(RATE), "slice {k}: rate");
+        assert_eq!(row[1], row[2], "slice {k}: length vs duration");
+        assert_eq!(row[1], row[3], "slice {k}: runs past the session");
         if float {
-            assert_eq!(row[4], 0.0, "cut {k}: samples differ from the session");
+            assert_eq!(row[4], 0.0, "slice {k}: samples differ from the session");
         } else {
-            assert!(row[4] <= 0.51, "cut {k}: {} steps from the session", row[4]);
+            assert!(
+                row[4] <= 0.51,
+                "slice {k}: {} steps from the session",
+                row[4]
+            );
         }
         // One sample late, speech-bearing audio differs by far more than rounding.
         assert!(
             row[5] > 50.0 * if float { 1.0 / 32767.0 } else { 1.0 },
-            "cut {k}: {row:?}"
+            "slice {k}: {row:?}"
         );
     }
 }
 
-/// Each word is at least 12 dB above the 40 ms around it in the cut (the threshold and the
+/// Each word is at least 12 dB above the 40 ms around it in the slice (the threshold and the
 /// method of tests/demo_alignment.rs; the words are the demo's synthesis ground truth).
 /// Control: the session's own timings, not rewritten, fail on most words of the same audio.
-fn energy_lies_inside_words(s: &Session, out: &Path, cuts: &[Value]) {
+fn energy_lies_inside_words(s: &Session, out: &Path, slices: &[Value]) {
     let (mut checked, mut stale_failures) = (0, 0);
-    for c in cuts {
+    for c in slices {
         let a = audio::decode(&out.join(c["audio"].as_str().unwrap()), ChannelPolicy::Mix).unwrap();
-        let words: Vec<(f64, f64)> = cut_words(c).iter().map(|w| (w.0, w.1)).collect();
+        let words: Vec<(f64, f64)> = slice_words(c).iter().map(|w| (w.0, w.1)).collect();
         for (i, db) in outside_minus_inside_db(&a.samples, a.rate, &words)
             .into_iter()
             .enumerate()
@@ -228,7 +232,7 @@ fn energy_lies_inside_words(s: &Session, out: &Path, cuts: &[Value]) {
             );
             checked += 1;
         }
-        let from = f(&c["cut"]["start"]);
+        let from = f(&c["slice"]["start"]);
         let stale: Vec<(f64, f64)> = words.iter().map(|w| (w.0 + from, w.1 + from)).collect();
         stale_failures += outside_minus_inside_db(&a.samples, a.rate, &stale)
             .into_iter()
@@ -243,12 +247,12 @@ fn energy_lies_inside_words(s: &Session, out: &Path, cuts: &[Value]) {
 }
 
 #[test]
-fn a_long_session_is_cut_within_the_limits_with_every_word_kept_in_place() {
+fn a_long_session_is_sliced_within_the_limits_with_every_word_kept_in_place() {
     let tmp = tempfile::tempdir().unwrap();
     let s = session::build(tmp.path(), 180.0);
     assert!(s.samples as f64 / f64::from(RATE) >= 180.0);
     let out = tmp.path().join("out");
-    let (code, stdout) = cut(&s.manifest, &out, &[]);
+    let (code, stdout) = slice(&s.manifest, &out, &[]);
     assert_eq!(code, Some(0), "{stdout}");
     assert_eq!(
         std::fs::read_to_string(out.join("left_out.jsonl")).unwrap(),
@@ -259,16 +263,16 @@ fn a_long_session_is_cut_within_the_limits_with_every_word_kept_in_place() {
         ""
     );
     assert!(stdout.contains("1 clips in"), "{stdout}");
-    check_session_cuts(&s, &out, 2.0, 15.0, false);
+    check_session_slices(&s, &out, 2.0, 15.0, false);
     // The output is a manifest like any other: `retake check` finds nothing wrong with it
-    // (labels inside each cut, `duration` within 1 ms of the audio).
+    // (labels inside each slice, `duration` within 1 ms of the audio).
     let manifest = out.join("manifest.jsonl");
     let o = retake(&["check", manifest.to_str().unwrap()]);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
 }
 
 #[test]
-fn tight_limits_split_lines_between_words_and_float_cuts_equal_the_source() {
+fn tight_limits_split_lines_between_words_and_float_slices_equal_the_source() {
     let tmp = tempfile::tempdir().unwrap();
     let s = session::build(tmp.path(), 180.0);
     let out = tmp.path().join("out");
@@ -283,9 +287,9 @@ fn tight_limits_split_lines_between_words_and_float_cuts_equal_the_source() {
         "9",
         "--float",
     ];
-    let (code, stdout) = cut(&s.manifest, &out, &options);
+    let (code, stdout) = slice(&s.manifest, &out, &options);
     assert_eq!(code, Some(0), "{stdout}");
-    check_session_cuts(&s, &out, 1.0, 2.5, true);
+    check_session_slices(&s, &out, 1.0, 2.5, true);
 }
 
 #[test]
@@ -298,8 +302,8 @@ fn output_is_the_same_byte_for_byte_on_one_or_two_threads() {
     std::fs::write(&s.manifest, text).unwrap();
     let options = ["--pad", "0.05..0.4", "--seed", "3", "--longest", "9"];
     let (one, two) = (tmp.path().join("one"), tmp.path().join("two"));
-    cut(&s.manifest, &one, &[&options[..], &["-j", "1"]].concat());
-    cut(&s.manifest, &two, &[&options[..], &["-j", "2"]].concat());
+    slice(&s.manifest, &one, &[&options[..], &["-j", "1"]].concat());
+    slice(&s.manifest, &two, &[&options[..], &["-j", "2"]].concat());
     let (a, b) = (files_under(&one), files_under(&two));
     assert!(a.len() > 20, "{} files", a.len());
     assert_eq!(
@@ -309,7 +313,7 @@ fn output_is_the_same_byte_for_byte_on_one_or_two_threads() {
     for (x, y) in a.iter().zip(&b) {
         assert!(x.1 == y.1, "{} differs", x.0);
     }
-    // The drawn pads do vary: the silence before the first word differs among cuts.
+    // The drawn pads do vary: the silence before the first word differs among slices.
     let leads: Vec<f64> = read_jsonl(&one.join("manifest.jsonl"))
         .iter()
         .map(|c| f(&c["lines"][0]["start"]))
@@ -383,7 +387,7 @@ fn a_line_without_words_longer_than_the_longest_is_left_out_and_the_rest_comes_t
     let manifest = tmp.path().join("in.jsonl");
     std::fs::write(&manifest, clip.to_string() + "\n").unwrap();
     let out = tmp.path().join("out");
-    let (code, stdout) = cut(&manifest, &out, &[]);
+    let (code, stdout) = slice(&manifest, &out, &[]);
     assert_eq!(code, Some(3), "{stdout}");
     assert!(stdout.contains("1 stretches left out"), "{stdout}");
     let left = read_jsonl(&out.join("left_out.jsonl"));
@@ -398,15 +402,15 @@ fn a_line_without_words_longer_than_the_longest_is_left_out_and_the_rest_comes_t
     assert_eq!(left[0]["reason"], "too_long");
     // The rest comes through: "gate seven" (1.3 s of speech; 0.5 s of silence before and
     // 0.35 s, half the gap, after reach the 2 s shortest) and "copy that".
-    let cuts = read_jsonl(&out.join("manifest.jsonl"));
-    let texts: Vec<&str> = cuts
+    let slices = read_jsonl(&out.join("manifest.jsonl"));
+    let texts: Vec<&str> = slices
         .iter()
         .map(|c| c["lines"][0]["text"].as_str().unwrap())
         .collect();
     assert_eq!(texts, ["gate seven", "copy that"]);
-    let first = &cuts[0];
+    let first = &slices[0];
     assert!((f(&first["duration"]) - 2.0).abs() < 1e-9);
-    assert!(f(&first["cut"]["end"]) <= 1.8 + 0.35 + 1e-9);
+    assert!(f(&first["slice"]["end"]) <= 1.8 + 0.35 + 1e-9);
     assert_eq!(first["site"], "fjellvik-cold-store");
     assert_eq!(
         std::fs::read_to_string(out.join("rejects.jsonl")).unwrap(),
@@ -415,7 +419,7 @@ fn a_line_without_words_longer_than_the_longest_is_left_out_and_the_rest_comes_t
 }
 
 #[test]
-fn bad_clips_are_rejected_by_file_line_and_field_and_the_others_are_cut() {
+fn bad_clips_are_rejected_by_file_line_and_field_and_the_others_are_slice() {
     let tmp = tempfile::tempdir().unwrap();
     let demo = read_jsonl(&common::demo().join("manifest.jsonl"));
     let absolute = |c: &Value| {
@@ -446,7 +450,7 @@ fn bad_clips_are_rejected_by_file_line_and_field_and_the_others_are_cut() {
     let manifest = tmp.path().join("in.jsonl");
     std::fs::write(&manifest, lines.join("\n") + "\n").unwrap();
     let out = tmp.path().join("out");
-    let (code, stdout) = cut(&manifest, &out, &[]);
+    let (code, stdout) = slice(&manifest, &out, &[]);
     assert_eq!(code, Some(3), "{stdout}");
     assert!(stdout.contains("3 rejected"), "{stdout}");
     let rejects = read_jsonl(&out.join("rejects.jsonl"));
@@ -459,7 +463,7 @@ fn bad_clips_are_rejected_by_file_line_and_field_and_the_others_are_cut() {
             )
         })
         .collect();
-    // The cut-off line names the field it was in when the text ended.
+    // The slice-off line names the field it was in when the text ended.
     assert_eq!(named, [(2, "lines[2].end"), (3, "audio"), (5, "audio")]);
     for r in &rejects {
         assert_eq!(r["file"], manifest.to_str().unwrap());
@@ -470,20 +474,20 @@ fn bad_clips_are_rejected_by_file_line_and_field_and_the_others_are_cut() {
             .unwrap()
             .contains("past the end")
     );
-    let cuts = read_jsonl(&out.join("manifest.jsonl"));
-    let sources: Vec<&str> = cuts
+    let slices = read_jsonl(&out.join("manifest.jsonl"));
+    let sources: Vec<&str> = slices
         .iter()
-        .map(|c| c["cut"]["source"].as_str().unwrap())
+        .map(|c| c["slice"]["source"].as_str().unwrap())
         .collect();
     assert!(sources.contains(&"pick-a-001"), "{sources:?}");
-    // The untimed clip (5.97 s) is one whole cut with its text.
-    let whole: Vec<&Value> = cuts
+    // The untimed clip (5.97 s) is one whole slice with its text.
+    let whole: Vec<&Value> = slices
         .iter()
-        .filter(|c| c["cut"]["source"] == untimed["id"])
+        .filter(|c| c["slice"]["source"] == untimed["id"])
         .collect();
     assert_eq!(whole.len(), 1);
     assert_eq!(whole[0]["text"], untimed["text"]);
-    assert_eq!(f(&whole[0]["cut"]["start"]), 0.0);
+    assert_eq!(f(&whole[0]["slice"]["start"]), 0.0);
     assert!((f(&whole[0]["duration"]) - 95_566.0 / 16_000.0).abs() < 1e-9);
     assert!(out.join(whole[0]["audio"].as_str().unwrap()).is_file());
 }
@@ -502,7 +506,7 @@ fn an_untimed_clip_too_long_is_left_out_and_bad_options_are_usage_errors() {
     let manifest = tmp.path().join("in.jsonl");
     std::fs::write(&manifest, untimed.to_string() + "\n").unwrap();
     let out = tmp.path().join("out");
-    let (code, _) = cut(&manifest, &out, &["--longest", "4"]);
+    let (code, _) = slice(&manifest, &out, &["--longest", "4"]);
     assert_eq!(code, Some(3));
     let left = read_jsonl(&out.join("left_out.jsonl"));
     assert_eq!(left.len(), 1);
@@ -517,7 +521,7 @@ fn an_untimed_clip_too_long_is_left_out_and_bad_options_are_usage_errors() {
         &["--longest", "0"],
     ] {
         let mut args = vec![
-            "cut",
+            "slice",
             manifest.to_str().unwrap(),
             "-o",
             out.to_str().unwrap(),
@@ -530,10 +534,10 @@ fn an_untimed_clip_too_long_is_left_out_and_bad_options_are_usage_errors() {
 }
 
 #[test]
-fn a_recording_shorter_than_its_header_says_is_rejected_with_no_cuts_left() {
-    // The recording is streamed, so the first cuts are written before the end of the file is
+fn a_recording_shorter_than_its_header_says_is_rejected_with_no_slices_left() {
+    // The recording is streamed, so the first slices are written before the end of the file is
     // reached; a WAV whose data chunk declares more than the file holds must still end as a
-    // reject with every cut of it removed.
+    // reject with every slice of it removed.
     let tmp = tempfile::tempdir().unwrap();
     let rate = 16_000;
     let spans: Vec<(f64, f64)> = (0..12)
@@ -561,7 +565,7 @@ fn a_recording_shorter_than_its_header_says_is_rejected_with_no_cuts_left() {
     )
     .unwrap();
     let out = tmp.path().join("out");
-    let (code, stdout) = cut(&manifest, &out, &["--longest", "3"]);
+    let (code, stdout) = slice(&manifest, &out, &["--longest", "3"]);
     assert_eq!(code, Some(3), "{stdout}");
     let rejects = read_jsonl(&out.join("rejects.jsonl"));
     assert_eq!(rejects.len(), 1, "{rejects:?}");
@@ -572,35 +576,35 @@ fn a_recording_shorter_than_its_header_says_is_rejected_with_no_cuts_left() {
         "{reason}"
     );
     assert!(read_jsonl(&out.join("manifest.jsonl")).is_empty());
-    let left: Vec<_> = std::fs::read_dir(out.join("cuts")).unwrap().collect();
+    let left: Vec<_> = std::fs::read_dir(out.join("slices")).unwrap().collect();
     assert!(
         left.is_empty(),
-        "cuts of a rejected recording remain: {left:?}"
+        "slices of a rejected recording remain: {left:?}"
     );
 }
 
 #[test]
-fn a_rerun_with_other_limits_leaves_no_stale_cuts_and_nothing_else_is_touched() {
+fn a_rerun_with_other_limits_leaves_no_stale_slices_and_nothing_else_is_touched() {
     let tmp = tempfile::tempdir().unwrap();
     let s = session::build(tmp.path(), 60.0);
     let out = tmp.path().join("out");
-    cut(&s.manifest, &out, &["--longest", "3", "--shortest", "1"]);
+    slice(&s.manifest, &out, &["--longest", "3", "--shortest", "1"]);
     let many = read_jsonl(&out.join("manifest.jsonl")).len();
-    // Something of the user's in the output folder, named like a cut.
-    std::fs::write(out.join("cuts/notes.c99.wav"), b"mine").unwrap();
-    cut(&s.manifest, &out, &["--longest", "15"]);
+    // Something of the user's in the output folder, named like a slice.
+    std::fs::write(out.join("slices/notes.c99.wav"), b"mine").unwrap();
+    slice(&s.manifest, &out, &["--longest", "15"]);
     let listed: Vec<String> = read_jsonl(&out.join("manifest.jsonl"))
         .iter()
         .map(|c| c["audio"].as_str().unwrap().to_string())
         .collect();
-    assert!(listed.len() < many, "{} cuts then {}", many, listed.len());
-    let mut on_disk: Vec<String> = std::fs::read_dir(out.join("cuts"))
+    assert!(listed.len() < many, "{} slices then {}", many, listed.len());
+    let mut on_disk: Vec<String> = std::fs::read_dir(out.join("slices"))
         .unwrap()
-        .map(|e| format!("cuts/{}", e.unwrap().file_name().to_string_lossy()))
+        .map(|e| format!("slices/{}", e.unwrap().file_name().to_string_lossy()))
         .collect();
     on_disk.sort();
     let mut expected = listed.clone();
-    expected.push("cuts/notes.c99.wav".into());
+    expected.push("slices/notes.c99.wav".into());
     expected.sort();
     assert_eq!(on_disk, expected);
 }

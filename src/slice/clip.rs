@@ -1,11 +1,11 @@
-//! One source clip through `cut`: check, measure its length, plan, then decode front to back
-//! while slicing and writing, so memory holds about one cut of audio at a time.
+//! One source clip through `slice`: check, measure its length, plan, then decode front to back
+//! while slicing and writing, so memory holds about one slice of audio at a time.
 
 use super::labels::lines_of;
-use super::plan::{LeftOut, PlannedCut, Reason, plan};
+use super::plan::{LeftOut, PlannedSlice, Reason, plan};
 use super::units::{Units, find_units};
 use super::window::{Window, frame_count};
-use super::{CUTS_DIR, CutReject, CutSpec, LeftOutRecord};
+use super::{LeftOutRecord, SLICES_DIR, SliceReject, SliceSpec};
 use crate::audio::Audio;
 use crate::files::file_stem;
 use crate::files::write_wav_atomically;
@@ -16,25 +16,25 @@ use crate::transcript::{Clip, Entry, Manifest, validate};
 #[derive(Debug, Default)]
 pub(super) struct ClipOutcome {
     /// Output manifest records, in order.
-    pub cuts: Vec<Clip>,
-    /// Stretches that could not be cut within the limits.
+    pub slices: Vec<Clip>,
+    /// Stretches that could not be sliced within the limits.
     pub left_out: Vec<LeftOutRecord>,
     /// Seconds of audio written.
     pub seconds_out: f64,
-    /// Seconds of speech inside the cuts (an untimed clip counts whole).
+    /// Seconds of speech inside the slices (an untimed clip counts whole).
     pub speech_kept: f64,
     /// Seconds of speech left out.
     pub speech_left_out: f64,
 }
 
-/// Cut one clip; a clip that cannot be processed is a reject, and none of its cuts remain.
-pub(super) fn cut_clip(
-    spec: &CutSpec<'_>,
+/// Slice one clip; a clip that cannot be processed is a reject, and none of its slices remain.
+pub(super) fn slice_clip(
+    spec: &SliceSpec<'_>,
     manifest: &Manifest,
     entry: &Entry,
-) -> Result<ClipOutcome, CutReject> {
+) -> Result<ClipOutcome, SliceReject> {
     let clip = &entry.clip;
-    let reject = |field: &str, reason: String| CutReject {
+    let reject = |field: &str, reason: String| SliceReject {
         file: manifest.path.display().to_string(),
         reject: Reject {
             line: entry.line,
@@ -59,7 +59,7 @@ pub(super) fn cut_clip(
 
     let rate = f64::from(sample_rate);
     let mut outcome = ClipOutcome::default();
-    let (cuts, units) = match &clip.lines {
+    let (slices, units) = match &clip.lines {
         Some(lines) => {
             let units = find_units(lines, sample_rate, total);
             let p = plan(&units, total, sample_rate, &spec.plan(), &clip.id);
@@ -68,7 +68,7 @@ pub(super) fn cut_clip(
                 outcome.speech_left_out += record.1;
                 outcome.left_out.push(record.0);
             }
-            (p.cuts, Some(units))
+            (p.slices, Some(units))
         }
         None => match untimed(spec, entry, total, sample_rate) {
             Ok(whole) => (vec![whole], None),
@@ -83,13 +83,13 @@ pub(super) fn cut_clip(
     let stem = file_stem(&clip.id);
     let mut written = Vec::new();
     let mut window = Window::open(&path, spec.channels).map_err(audio_err)?;
-    let result = cuts.iter().enumerate().try_for_each(|(k, c)| {
-        let rel = format!("{CUTS_DIR}/{stem}.c{k}.wav");
-        let record = cut_record(clip, units.as_ref(), c, k, &rel, rate);
+    let result = slices.iter().enumerate().try_for_each(|(k, c)| {
+        let rel = format!("{SLICES_DIR}/{stem}.c{k}.wav");
+        let record = slice_record(clip, units.as_ref(), c, k, &rel, rate);
         if let Some((field, reason)) = validate(&record, record.duration).into_iter().next() {
             return Err(reject(
                 &field,
-                format!("cut {k}: label would be invalid: {reason}"),
+                format!("slice {k}: label would be invalid: {reason}"),
             ));
         }
         let signal = Audio {
@@ -112,10 +112,10 @@ pub(super) fn cut_clip(
             }
             None => signal.duration(),
         };
-        outcome.cuts.push(record);
+        outcome.slices.push(record);
         Ok(())
     });
-    // The whole file is read even after the last cut, so a recording shorter than its
+    // The whole file is read even after the last slice, so a recording shorter than its
     // header says is a reject, as `run` would make it.
     let result = result.and_then(|()| window.finish().map_err(|e| reject("audio", e)));
     if let Err(r) = result {
@@ -127,12 +127,12 @@ pub(super) fn cut_clip(
     Ok(outcome)
 }
 
-/// The manifest record of cut `k`: labels on the cut's timeline, the source's extra fields,
+/// The manifest record of slice `k`: labels on the slice's timeline, the source's extra fields,
 /// and where in the source it was taken from.
-fn cut_record(
+fn slice_record(
     clip: &Clip,
     units: Option<&Units>,
-    c: &PlannedCut,
+    c: &PlannedSlice,
     k: usize,
     rel: &str,
     rate: f64,
@@ -145,7 +145,7 @@ fn cut_record(
     };
     let mut extra = clip.extra.clone();
     extra.insert(
-        "cut".into(),
+        "slice".into(),
         serde_json::json!({
             "source": clip.id,
             "audio": clip.audio,
@@ -170,7 +170,7 @@ fn cut_record(
 
 /// A left-out stretch as reported, and its seconds of speech.
 fn left_out_record(
-    spec: &CutSpec<'_>,
+    spec: &SliceSpec<'_>,
     entry: &Entry,
     units: &Units,
     l: &LeftOut,
@@ -190,11 +190,11 @@ fn left_out_record(
         / rate;
     let detail = match l.reason {
         Reason::TooLong => format!(
-            "{speech:.3} s of speech with no gap of silence is longer than the longest cut ({} s)",
+            "{speech:.3} s of speech with no gap of silence is longer than the longest slice ({} s)",
             spec.limits.longest
         ),
         Reason::TooShort => format!(
-            "{speech:.3} s of speech cannot reach the shortest cut ({} s) with the silence \
+            "{speech:.3} s of speech cannot reach the shortest slice ({} s) with the silence \
              around it, nor join a neighbour within the longest ({} s)",
             spec.limits.shortest, spec.limits.longest
         ),
@@ -218,17 +218,17 @@ fn left_out_record(
     (record, speech)
 }
 
-/// A clip without timings: one whole cut when its length is within the limits, else the
+/// A clip without timings: one whole slice when its length is within the limits, else the
 /// whole clip left out.
 fn untimed(
-    spec: &CutSpec<'_>,
+    spec: &SliceSpec<'_>,
     entry: &Entry,
     total: u64,
     rate: u32,
-) -> Result<PlannedCut, LeftOutRecord> {
+) -> Result<PlannedSlice, LeftOutRecord> {
     let (min, max) = spec.limits.in_samples(rate);
     if (min..=max).contains(&total) {
-        return Ok(PlannedCut {
+        return Ok(PlannedSlice {
             units: 0..0,
             start: 0,
             end: total,
@@ -242,12 +242,12 @@ fn untimed(
     };
     let detail = match reason {
         Reason::TooLong => format!(
-            "untimed clip of {seconds:.3} s is longer than the longest cut ({} s) and has no \
-             timings to cut at",
+            "untimed clip of {seconds:.3} s is longer than the longest slice ({} s) and has no \
+             timings to slice at",
             spec.limits.longest
         ),
         Reason::TooShort => format!(
-            "untimed clip of {seconds:.3} s is shorter than the shortest cut ({} s)",
+            "untimed clip of {seconds:.3} s is shorter than the shortest slice ({} s)",
             spec.limits.shortest
         ),
     };

@@ -1,5 +1,5 @@
 //! The transcript of a run of units: whole lines where the run holds all of a line, the part
-//! of a line where a cut split it, every time moved to the cut's own timeline.
+//! of a line where a slice split it, every time moved to the slice's own timeline.
 
 use std::collections::BTreeMap;
 
@@ -83,7 +83,7 @@ mod tests {
     use serde_json::Value;
 
     use super::*;
-    use crate::cut::units::find_units;
+    use crate::slice::units::find_units;
     use crate::transcript::parse_clip;
 
     const CLIP: &str = r#"{"id":"d","audio":"d.wav","lines":[
@@ -99,7 +99,7 @@ mod tests {
         let u = find_units(&lines, 100, 400).units;
         // Units: the four words, then the line without words.
         assert_eq!(u.len(), 5);
-        // Cut at 1.4 s: the second part starts at sample 140.
+        // Slice at 1.4 s: the second part starts at sample 140.
         let first = lines_of(&lines, &u[..2], 0.0, 1.4);
         let second = lines_of(&lines, &u[2..], 1.4, 2.6);
         assert_eq!(first.len(), 1);
@@ -133,7 +133,7 @@ mod tests {
         assert_eq!(all[0].text, "Reefer at DOCK four");
         assert_eq!(all[0].words.len(), 4);
         assert!((all[0].start - 0.25).abs() < 1e-12);
-        // Held inside the cut: 3.5 - 0.3 = 3.2 > 3.1.
+        // Held inside the slice: 3.5 - 0.3 = 3.2 > 3.1.
         assert_eq!(lines_of(&lines, &u, 0.3, 3.1)[1].end, 3.1);
         // Never a negative zero.
         let z = lines_of(&lines, &u[..1], 0.5, 1.0)[0].start;

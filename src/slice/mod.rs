@@ -1,17 +1,17 @@
-//! `cut`: long recordings into training clips, cut only in the silence between words.
+//! `slice`: long recordings into training clips, sliced only in the silence between words.
 //!
 //! Per clip: check the labels, decode, check them against the audio's length, find the
-//! stretches no cut may split ([`units`]), choose the cuts ([`plan`], whose doc states the
+//! stretches no slice may split ([`units`]), choose the slices ([`plan`], whose doc states the
 //! rule), then slice the audio at whole samples, at the source's own rate, and move the
-//! labels to each cut's timeline ([`labels`]). A clip without timings (bare `text`) becomes
-//! one cut when its length is within the limits.
+//! labels to each slice's timeline ([`labels`]). A clip without timings (bare `text`) becomes
+//! one slice when its length is within the limits.
 //!
 //! Clips run in parallel, and every pad is drawn from a stream fixed by (seed, clip id,
 //! gap), so the output is byte-identical for any thread count. Files are written under a
-//! temporary name and renamed. Speech that cannot be cut within the limits goes to
+//! temporary name and renamed. Speech that cannot be sliced within the limits goes to
 //! `left_out.jsonl`; a clip that cannot be processed at all goes to `rejects.jsonl`, and
-//! the run goes on. A recording is decoded front to back as its cuts need it
-//! ([`window`]), so a worker holds about one cut of audio, however long the recording.
+//! the run goes on. A recording is decoded front to back as its slices need it
+//! ([`window`]), so a worker holds about one slice of audio, however long the recording.
 
 mod clip;
 pub mod labels;
@@ -31,25 +31,25 @@ use crate::run::{MANIFEST_NAME, REJECTS_NAME, Reject, RunError, write_atomically
 use crate::transcript::{read_manifest, write_manifest};
 use plan::{Limits, PadRange, PlanSpec, Reason};
 
-/// Folder for cut audio inside the output folder.
-pub const CUTS_DIR: &str = "cuts";
+/// Folder for slice audio inside the output folder.
+pub const SLICES_DIR: &str = "slices";
 /// Name of the left-out report inside the output folder.
 pub const LEFT_OUT_NAME: &str = "left_out.jsonl";
 
-/// What to cut and how.
+/// What to slice and how.
 #[derive(Debug, Clone)]
-pub struct CutSpec<'a> {
+pub struct SliceSpec<'a> {
     /// Input manifest.
     pub input: &'a Path,
     /// Output folder (created if needed).
     pub out: &'a Path,
-    /// Shortest and longest cut, padding included.
+    /// Shortest and longest slice, padding included.
     pub limits: Limits,
     /// Padding drawn per side.
     pub pad: PadRange,
     /// Seed of the pad draws.
     pub seed: u64,
-    /// Sample format of the written cuts.
+    /// Sample format of the written slices.
     pub format: SampleFormat,
     /// How a multichannel source becomes one channel.
     pub channels: ChannelPolicy,
@@ -57,7 +57,7 @@ pub struct CutSpec<'a> {
     pub threads: Option<usize>,
 }
 
-impl CutSpec<'_> {
+impl SliceSpec<'_> {
     fn plan(&self) -> PlanSpec {
         PlanSpec {
             limits: self.limits,
@@ -67,7 +67,7 @@ impl CutSpec<'_> {
     }
 }
 
-/// One line of `left_out.jsonl`: a stretch of a source that no cut holds.
+/// One line of `left_out.jsonl`: a stretch of a source that no slice holds.
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct LeftOutRecord {
     /// Source clip id.
@@ -86,10 +86,10 @@ pub struct LeftOutRecord {
     pub detail: String,
 }
 
-/// One line of `rejects.jsonl`: a clip that could not be cut at all. The fields of a run's
+/// One line of `rejects.jsonl`: a clip that could not be sliced at all. The fields of a run's
 /// reject, plus the manifest it came from.
 #[derive(Debug, Clone, Serialize, PartialEq)]
-pub struct CutReject {
+pub struct SliceReject {
     /// The manifest.
     pub file: String,
     /// Line, id, field and reason.
@@ -99,18 +99,18 @@ pub struct CutReject {
 
 /// Figures for the closing summary.
 #[derive(Debug, Clone, Default, PartialEq)]
-pub struct CutSummary {
+pub struct SliceSummary {
     /// Manifest lines read.
     pub clips_in: usize,
-    /// Clips processed (possibly into no cuts).
-    pub clips_cut: usize,
+    /// Clips processed (possibly into no slices).
+    pub clips_slice: usize,
     /// Clips (and unreadable lines) in `rejects.jsonl`.
     pub rejected: usize,
-    /// Cuts written.
-    pub cuts: usize,
+    /// Slices written.
+    pub slices: usize,
     /// Seconds of audio written.
     pub seconds_out: f64,
-    /// Seconds of speech inside the cuts: the union of the label spans, widened to whole
+    /// Seconds of speech inside the slices: the union of the label spans, widened to whole
     /// samples; an untimed clip counts whole.
     pub speech_kept: f64,
     /// Stretches in `left_out.jsonl`.
@@ -121,25 +121,25 @@ pub struct CutSummary {
     pub wall_seconds: f64,
 }
 
-/// Cut every clip of a manifest.
+/// Slice every clip of a manifest.
 ///
 /// # Errors
 /// Only run-wide failures (manifest unreadable, output not writable, no threads); a bad
 /// clip is a reject and a stretch that does not fit is left out, neither is an error.
-pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
+pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
     let started = Instant::now();
     let manifest = read_manifest(spec.input).map_err(|source| RunError::Manifest {
         path: spec.input.to_path_buf(),
         source,
     })?;
-    let dir = spec.out.join(CUTS_DIR);
+    let dir = spec.out.join(SLICES_DIR);
     let output = |source| RunError::Output {
         path: dir.clone(),
         source,
     };
     std::fs::create_dir_all(&dir).map_err(output)?;
     write::remove_partial_files(&dir).map_err(output)?;
-    let earlier = earlier_cuts(spec.out);
+    let earlier = earlier_slices(spec.out);
     let threads = spec.threads.unwrap_or(0);
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
@@ -152,32 +152,32 @@ pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
         manifest
             .entries
             .par_iter()
-            .map(|entry| clip::cut_clip(spec, &manifest, entry))
+            .map(|entry| clip::slice_clip(spec, &manifest, entry))
             .collect()
     });
 
-    let mut summary = CutSummary {
+    let mut summary = SliceSummary {
         clips_in: manifest.entries.len() + manifest.problems.len(),
-        ..CutSummary::default()
+        ..SliceSummary::default()
     };
-    let mut rejects: Vec<CutReject> = manifest
+    let mut rejects: Vec<SliceReject> = manifest
         .problems
         .iter()
-        .map(|p| CutReject {
+        .map(|p| SliceReject {
             file: p.file.display().to_string(),
             reject: Reject::from(p.clone()),
         })
         .collect();
-    let (mut cuts, mut left_out) = (Vec::new(), Vec::new());
+    let (mut slices, mut left_out) = (Vec::new(), Vec::new());
     for result in results {
         match result {
             Ok(done) => {
-                summary.clips_cut += 1;
-                summary.cuts += done.cuts.len();
+                summary.clips_slice += 1;
+                summary.slices += done.slices.len();
                 summary.seconds_out += done.seconds_out;
                 summary.speech_kept += done.speech_kept;
                 summary.speech_left_out += done.speech_left_out;
-                cuts.extend(done.cuts);
+                slices.extend(done.slices);
                 left_out.extend(done.left_out);
             }
             Err(r) => rejects.push(r),
@@ -186,12 +186,14 @@ pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
     rejects.sort_by_key(|r| r.reject.line);
     summary.rejected = rejects.len();
     summary.left_out = left_out.len();
-    write_atomically(&spec.out.join(MANIFEST_NAME), |w| write_manifest(w, &cuts))?;
+    write_atomically(&spec.out.join(MANIFEST_NAME), |w| {
+        write_manifest(w, &slices)
+    })?;
     write_jsonl(&spec.out.join(LEFT_OUT_NAME), &left_out)?;
     write_jsonl(&spec.out.join(REJECTS_NAME), &rejects)?;
-    // Cuts an earlier run wrote here (with other limits, say) that this run did not make
+    // Slices an earlier run wrote here (with other limits, say) that this run did not make
     // again would lie next to the new ones, listed nowhere: remove them.
-    let kept: std::collections::HashSet<&str> = cuts.iter().map(|c| c.audio.as_str()).collect();
+    let kept: std::collections::HashSet<&str> = slices.iter().map(|c| c.audio.as_str()).collect();
     for old in earlier.iter().filter(|a| !kept.contains(a.as_str())) {
         let _ = std::fs::remove_file(spec.out.join(old));
     }
@@ -199,9 +201,9 @@ pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
     Ok(summary)
 }
 
-/// Audio of the cuts listed in an earlier output manifest in `out`, when there is one
-/// (only paths under `cuts/`, so nothing else is ever touched).
-fn earlier_cuts(out: &Path) -> Vec<String> {
+/// Audio of the slices listed in an earlier output manifest in `out`, when there is one
+/// (only paths under `slices/`, so nothing else is ever touched).
+fn earlier_slices(out: &Path) -> Vec<String> {
     let Ok(earlier) = read_manifest(&out.join(MANIFEST_NAME)) else {
         return Vec::new();
     };
@@ -210,7 +212,7 @@ fn earlier_cuts(out: &Path) -> Vec<String> {
         .into_iter()
         .map(|e| e.clip.audio)
         .filter(|a| {
-            Path::new(a).parent() == Some(Path::new(CUTS_DIR))
+            Path::new(a).parent() == Some(Path::new(SLICES_DIR))
                 && a.ends_with(".wav")
                 && !a.contains("..")
         })

@@ -1,7 +1,7 @@
-//! A clip's labels as the stretches no cut may split ("units") and the gaps between them.
+//! A clip's labels as the stretches no slice may split ("units") and the gaps between them.
 //!
 //! Each word of a line with words is a unit; a line without words is one unit. The first
-//! and last word of a line also cover any part of the line outside its words, so a cut can
+//! and last word of a line also cover any part of the line outside its words, so a slice can
 //! never fall inside a line's span without falling between two of its words. Spans are
 //! widened to whole samples (start rounded down, end up) and units that overlap or touch
 //! merge: a gap is at least one whole sample of silence, so words that touch (as forced
@@ -18,7 +18,7 @@ pub struct Piece {
     pub word: Option<usize>,
 }
 
-/// A stretch of speech no cut may cross: samples `start..end` of the recording.
+/// A stretch of speech no slice may cross: samples `start..end` of the recording.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Unit {
     /// First sample.
@@ -47,7 +47,7 @@ pub struct Units {
     /// The units, in order, with at least one sample between neighbours.
     pub units: Vec<Unit>,
     /// For the gap before unit `k` (index `k - 1`): true when a line continues across it,
-    /// so a cut there splits the line between two of its words.
+    /// so a slice there splits the line between two of its words.
     pub inside_line: Vec<bool>,
 }
 

@@ -1,5 +1,5 @@
-//! A recording read front to back for slicing: frames are decoded as the next cut needs
-//! them and dropped once passed, so memory holds about one cut, not the whole recording.
+//! A recording read front to back for slicing: frames are decoded as the next slice needs
+//! them and dropped once passed, so memory holds about one slice, not the whole recording.
 
 use crate::audio::{AudioError, ChannelPolicy, Stream};
 use std::path::{Path, PathBuf};
@@ -61,7 +61,7 @@ impl Window {
                 .map_err(|e| e.to_string())?
             {
                 return Err(format!(
-                    "{}: the audio ends at frame {} before the cut's end at frame {b}",
+                    "{}: the audio ends at frame {} before the slice's end at frame {b}",
                     self.path.display(),
                     self.start + self.buf.len() as u64
                 ));

@@ -1,4 +1,4 @@
-//! Cut audio on disk is written under a temporary name and renamed
+//! Slice audio on disk is written under a temporary name and renamed
 //! ([`crate::files::write_wav_atomically`]), so an interrupted run leaves whole files or
 //! `.part` files; the `.part` files are cleared at the next start.
 
