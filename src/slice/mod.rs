@@ -103,7 +103,7 @@ pub struct SliceSummary {
     /// Manifest lines read.
     pub clips_in: usize,
     /// Clips processed (possibly into no slices).
-    pub clips_slice: usize,
+    pub clips_sliced: usize,
     /// Clips (and unreadable lines) in `rejects.jsonl`.
     pub rejected: usize,
     /// Slices written.
@@ -172,7 +172,7 @@ pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
     for result in results {
         match result {
             Ok(done) => {
-                summary.clips_slice += 1;
+                summary.clips_sliced += 1;
                 summary.slices += done.slices.len();
                 summary.seconds_out += done.seconds_out;
                 summary.speech_kept += done.speech_kept;
