@@ -9,7 +9,7 @@ use super::{CUTS_DIR, CutReject, CutSpec, LeftOutRecord};
 use crate::audio::Audio;
 use crate::files::file_stem;
 use crate::files::write_wav_atomically;
-use crate::run::Reject;
+use crate::run::{Failure, Reject, write_failure};
 use crate::transcript::{Clip, Entry, Manifest, validate};
 
 /// What one source clip gave.
@@ -27,21 +27,24 @@ pub(super) struct ClipOutcome {
     pub speech_left_out: f64,
 }
 
-/// Cut one clip; a clip that cannot be processed is a reject, and none of its cuts remain.
+/// Cut one clip; a clip that cannot be processed is a reject, and none of its cuts remain;
+/// a write the file system refuses stops the whole run.
 pub(super) fn cut_clip(
     spec: &CutSpec<'_>,
     manifest: &Manifest,
     entry: &Entry,
-) -> Result<ClipOutcome, CutReject> {
+) -> Result<ClipOutcome, Failure<CutReject>> {
     let clip = &entry.clip;
-    let reject = |field: &str, reason: String| CutReject {
-        file: manifest.path.display().to_string(),
-        reject: Reject {
-            line: entry.line,
-            id: Some(clip.id.clone()),
-            field: field.to_string(),
-            reason,
-        },
+    let reject = |field: &str, reason: String| {
+        Failure::Reject(CutReject {
+            file: manifest.path.display().to_string(),
+            reject: Reject {
+                line: entry.line,
+                id: Some(clip.id.clone()),
+                field: field.to_string(),
+                reason,
+            },
+        })
     };
     if let Some((field, reason)) = validate(clip, None).into_iter().next() {
         return Err(reject(&field, reason));
@@ -99,7 +102,7 @@ pub(super) fn cut_clip(
                 .map_err(|e| reject("audio", e))?,
         };
         let dest = write_wav_atomically(spec.out, &rel, &signal, spec.format)
-            .map_err(|e| reject("", e))?;
+            .map_err(|e| write_failure(e, |m| reject("", m)))?;
         written.push(dest);
         outcome.seconds_out += signal.duration();
         outcome.speech_kept += match &units {

@@ -18,16 +18,18 @@ pub mod labels;
 pub mod plan;
 pub mod units;
 mod window;
-mod write;
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 use rayon::prelude::*;
 use serde::Serialize;
 
 use crate::audio::{ChannelPolicy, SampleFormat};
-use crate::run::{MANIFEST_NAME, REJECTS_NAME, Reject, RunError, write_atomically};
+use crate::files::{remove_stale_temp_files, sync_dir};
+use crate::outdir::earlier::JOURNAL_NAME;
+use crate::outdir::{Earlier, FolderLock, LOCK_NAME, Targets, refuse_overwrite};
+use crate::run::{Failure, MANIFEST_NAME, REJECTS_NAME, Reject, RunError, write_atomically};
 use crate::transcript::{read_manifest, write_manifest};
 use plan::{Limits, PadRange, PlanSpec, Reason};
 
@@ -132,14 +134,50 @@ pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
         path: spec.input.to_path_buf(),
         source,
     })?;
+    let targets = Targets::new(
+        spec.out,
+        &[
+            MANIFEST_NAME,
+            REJECTS_NAME,
+            LEFT_OUT_NAME,
+            LOCK_NAME,
+            JOURNAL_NAME,
+        ],
+        &[CUTS_DIR],
+    );
+    let audio: Vec<(String, PathBuf)> = manifest
+        .entries
+        .iter()
+        .map(|e| {
+            (
+                format!("audio of clip `{}`", e.clip.id),
+                manifest.base().join(&e.clip.audio),
+            )
+        })
+        .collect();
+    let inputs = audio.iter().map(|(w, p)| (w.clone(), p.as_path()));
+    refuse_overwrite(
+        &targets,
+        [("input manifest".to_string(), spec.input)]
+            .into_iter()
+            .chain(inputs),
+    )?;
+    let _lock = FolderLock::acquire(spec.out)?;
     let dir = spec.out.join(CUTS_DIR);
-    let output = |source| RunError::Output {
-        path: dir.clone(),
-        source,
-    };
-    std::fs::create_dir_all(&dir).map_err(output)?;
-    write::remove_partial_files(&dir).map_err(output)?;
-    let earlier = earlier_cuts(spec.out);
+    std::fs::create_dir_all(&dir).map_err(RunError::output(&dir))?;
+    for d in [spec.out, &dir] {
+        remove_stale_temp_files(d).map_err(RunError::output(d))?;
+    }
+    // Cuts an earlier run wrote here (with other limits, say) that this run does not make
+    // again are removed once the new manifest is in place, even after a kill in between.
+    let earlier = Earlier::begin(
+        spec.out,
+        &[CUTS_DIR],
+        MANIFEST_NAME,
+        &[REJECTS_NAME, LEFT_OUT_NAME],
+        |c| vec![c.audio.clone()],
+    )
+    .map_err(RunError::output(spec.out))?;
     let threads = spec.threads.unwrap_or(0);
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
@@ -152,9 +190,13 @@ pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
         manifest
             .entries
             .par_iter()
-            .map(|entry| clip::cut_clip(spec, &manifest, entry))
-            .collect()
-    });
+            .map(|entry| match clip::cut_clip(spec, &manifest, entry) {
+                Ok(done) => Ok(Ok(done)),
+                Err(Failure::Reject(r)) => Ok(Err(r)),
+                Err(Failure::Stop(e)) => Err(e),
+            })
+            .collect::<Result<Vec<_>, RunError>>()
+    })?;
 
     let mut summary = CutSummary {
         clips_in: manifest.entries.len() + manifest.problems.len(),
@@ -186,35 +228,14 @@ pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
     rejects.sort_by_key(|r| r.reject.line);
     summary.rejected = rejects.len();
     summary.left_out = left_out.len();
+    sync_dir(&dir).map_err(RunError::output(&dir))?;
     write_atomically(&spec.out.join(MANIFEST_NAME), |w| write_manifest(w, &cuts))?;
     write_jsonl(&spec.out.join(LEFT_OUT_NAME), &left_out)?;
     write_jsonl(&spec.out.join(REJECTS_NAME), &rejects)?;
-    // Cuts an earlier run wrote here (with other limits, say) that this run did not make
-    // again would lie next to the new ones, listed nowhere: remove them.
     let kept: std::collections::HashSet<&str> = cuts.iter().map(|c| c.audio.as_str()).collect();
-    for old in earlier.iter().filter(|a| !kept.contains(a.as_str())) {
-        let _ = std::fs::remove_file(spec.out.join(old));
-    }
+    earlier.finish(&kept).map_err(RunError::output(spec.out))?;
     summary.wall_seconds = started.elapsed().as_secs_f64();
     Ok(summary)
-}
-
-/// Audio of the cuts listed in an earlier output manifest in `out`, when there is one
-/// (only paths under `cuts/`, so nothing else is ever touched).
-fn earlier_cuts(out: &Path) -> Vec<String> {
-    let Ok(earlier) = read_manifest(&out.join(MANIFEST_NAME)) else {
-        return Vec::new();
-    };
-    earlier
-        .entries
-        .into_iter()
-        .map(|e| e.clip.audio)
-        .filter(|a| {
-            Path::new(a).parent() == Some(Path::new(CUTS_DIR))
-                && a.ends_with(".wav")
-                && !a.contains("..")
-        })
-        .collect()
 }
 
 fn write_jsonl<T: Serialize>(path: &Path, records: &[T]) -> Result<(), RunError> {
