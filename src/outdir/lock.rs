@@ -123,7 +123,10 @@ mod tests {
             "{second}"
         );
         drop(first);
-        assert_eq!(std::fs::read(out.join(LOCK_NAME)).expect("lock file").len(), 0);
+        assert_eq!(
+            std::fs::read(out.join(LOCK_NAME)).expect("lock file").len(),
+            0
+        );
         FolderLock::acquire(&out).expect("free again after the first is dropped");
     }
 }
