@@ -68,13 +68,13 @@ fn check_entry(manifest: &Manifest, entry: &Entry) -> (f64, Vec<Problem>) {
             if let Some(i) = a.first_non_finite {
                 ps.push(problem("audio", format!("sample {i} is not finite")));
             }
-            if let Some(d) = clip.duration {
-                if (d - a.duration()).abs() > DURATION_TOLERANCE_S {
-                    ps.push(problem(
-                        "duration",
-                        format!("{d} s, but the audio lasts {:.4} s", a.duration()),
-                    ));
-                }
+            if let Some(d) = clip.duration
+                && (d - a.duration()).abs() > DURATION_TOLERANCE_S
+            {
+                ps.push(problem(
+                    "duration",
+                    format!("{d} s, but the audio lasts {:.4} s", a.duration()),
+                ));
             }
             (Some(a.duration()), ps)
         }

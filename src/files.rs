@@ -1,85 +1,247 @@
 //! Output files: names made from clip ids, and writes (text or WAV) that never leave half a
-//! file.
+//! file, even on power loss.
+//!
+//! Every file is written under a temporary name unique to this process
+//! (`<name>.<pid>.<n>.part`), flushed to disk (`fsync`), then renamed into place; the folder
+//! is flushed after the rename, so a rename that was reported done survives a power cut.
+//! Only files with that temporary pattern are ever removed as leftovers
+//! ([`remove_stale_temp_files`]), and only while the folder's lock is held.
 
+use std::ffi::OsString;
 use std::io::Write;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU64, Ordering};
 
-use crate::audio::{self, Audio, SampleFormat};
+use sha2::{Digest, Sha256};
 
-use crate::seed::take_seed;
+use crate::audio::{self, Audio, AudioError, SampleFormat};
 
-/// A file name for a clip id: the id itself when it is plain, else a cleaned id plus a
-/// short hash of the original so two ids never share a file.
+/// Longest stem [`file_stem`] returns, in bytes. With the longest suffix the tool adds
+/// (`.t9999.s999-noise.wav`, then `.<pid>.<n>.part` while writing: under 60 bytes) a name
+/// stays well below the 255-byte limit of common file systems.
+pub const MAX_STEM_BYTES: usize = 160;
+
+/// Starts an escaped byte in a stem (`%2F`). Plain ids never contain it, so an id kept as it
+/// is can never equal another id's escaped form.
+const ESCAPE: char = '%';
+/// Starts the hash of an id too long to keep whole. Neither plain ids nor escaped forms
+/// contain it.
+const HASHED: char = '~';
+/// Hex digits of the hash of a long id: 128 bits of SHA-256.
+const HASH_HEX: usize = 32;
+
+/// A file name for a clip id, the same on every machine, and different for any two
+/// different ids:
+///
+/// - a plain id (ASCII letters, digits, `-`, `_`, `.`; not starting with `.`; at most
+///   [`MAX_STEM_BYTES`]) is kept as it is: `dock-01` → `dock-01`;
+/// - any other id is percent-escaped byte by byte (`north/dock 1` → `north%2Fdock%201`),
+///   which is reversible, so two ids never share an escaped form, and every escaped form
+///   holds `%`, which no plain id does;
+/// - an id whose escaped form is longer than [`MAX_STEM_BYTES`] (or empty) keeps a readable
+///   start of it plus `~` and 128 bits of its SHA-256: the only case where two ids could
+///   share a name, which would take a SHA-256 collision.
+///
+/// On a file system that ignores case, ids that differ only in case still share a name.
 pub fn file_stem(id: &str) -> String {
-    let clean: String = id
-        .chars()
-        .map(|c| {
-            if c.is_ascii_alphanumeric() || c == '-' || c == '_' || c == '.' {
-                c
-            } else {
-                '_'
-            }
-        })
-        .collect();
-    if clean == id && !id.starts_with('.') {
-        clean
-    } else {
-        format!(
-            "{}-{:08x}",
-            clean.trim_start_matches('.'),
-            take_seed(0, id, 0) as u32
-        )
+    let plain = !id.is_empty()
+        && !id.starts_with('.')
+        && id.len() <= MAX_STEM_BYTES
+        && id.bytes().all(is_plain_byte);
+    if plain {
+        return id.to_string();
     }
+    let mut escaped = String::with_capacity(id.len() + 8);
+    for (i, b) in id.bytes().enumerate() {
+        if is_plain_byte(b) && !(i == 0 && b == b'.') {
+            escaped.push(char::from(b));
+        } else {
+            escaped.push(ESCAPE);
+            escaped.push_str(&format!("{b:02X}"));
+        }
+    }
+    if !escaped.is_empty() && escaped.len() <= MAX_STEM_BYTES {
+        return escaped;
+    }
+    let keep = MAX_STEM_BYTES - HASH_HEX - 1;
+    let mut cut = keep.min(escaped.len());
+    // Do not end the readable part in the middle of an escape.
+    if let Some(p) = escaped[cut.saturating_sub(2)..cut].find(ESCAPE) {
+        cut = cut.saturating_sub(2) + p;
+    }
+    let digest = Sha256::digest(id.as_bytes());
+    let hex: String = digest
+        .iter()
+        .take(HASH_HEX / 2)
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    format!("{}{HASHED}{hex}", &escaped[..cut])
 }
 
-/// Write a file under a temporary name (`<name>.part`), then rename it into place, so a crash
-/// leaves either the old file or the whole new one.
+fn is_plain_byte(b: u8) -> bool {
+    b.is_ascii_alphanumeric() || b == b'-' || b == b'_' || b == b'.'
+}
+
+/// Temporary files written by this process so far (part of each temporary name).
+static TEMP_COUNTER: AtomicU64 = AtomicU64::new(0);
+
+/// The temporary name a file is written under before it is renamed to `path`: unique to this
+/// process and this write (`<name>.<pid>.<n>.part`), so two processes or two threads never
+/// write into one temporary file.
+pub fn temp_path(path: &Path) -> PathBuf {
+    let n = TEMP_COUNTER.fetch_add(1, Ordering::Relaxed);
+    let mut name: OsString = path.file_name().unwrap_or_default().to_os_string();
+    name.push(format!(".{}.{n}.part", std::process::id()));
+    path.with_file_name(name)
+}
+
+/// Whether `name` has the pattern of [`temp_path`]: `<name>.<digits>.<digits>.part`.
+pub fn is_temp_name(name: &str) -> bool {
+    let Some(rest) = name.strip_suffix(".part") else {
+        return false;
+    };
+    let mut parts = rest.rsplitn(3, '.');
+    let digits =
+        |s: Option<&str>| s.is_some_and(|s| !s.is_empty() && s.bytes().all(|b| b.is_ascii_digit()));
+    digits(parts.next()) && digits(parts.next()) && parts.next().is_some_and(|s| !s.is_empty())
+}
+
+/// Remove the temporary files ([`is_temp_name`]) an interrupted run left in `dir`: regular
+/// files only, nothing else. Call it only while holding the folder's lock, so no other run
+/// is writing them. Returns how many were removed.
 ///
 /// # Errors
-/// Creating, filling, flushing or renaming the file.
+/// Reading the folder or removing a file.
+pub fn remove_stale_temp_files(dir: &Path) -> std::io::Result<usize> {
+    let mut removed = 0;
+    for entry in std::fs::read_dir(dir)? {
+        let entry = entry?;
+        let stale =
+            entry.file_type()?.is_file() && entry.file_name().to_str().is_some_and(is_temp_name);
+        if stale {
+            std::fs::remove_file(entry.path())?;
+            removed += 1;
+        }
+    }
+    Ok(removed)
+}
+
+/// Flush a folder's entries (renames, removals) to disk.
+///
+/// # Errors
+/// Opening or syncing the folder.
+pub fn sync_dir(dir: &Path) -> std::io::Result<()> {
+    let dir = if dir.as_os_str().is_empty() {
+        Path::new(".")
+    } else {
+        dir
+    };
+    std::fs::File::open(dir)?.sync_all()
+}
+
+/// Write a file under a temporary name ([`temp_path`]), flush it to disk, rename it into
+/// place and flush the folder, so a crash or power cut leaves either the old file or the
+/// whole new one.
+///
+/// # Errors
+/// Creating, filling, flushing or renaming the file; the temporary file is removed.
 pub fn write_atomically(
     path: &Path,
     fill: impl FnOnce(&mut std::io::BufWriter<std::fs::File>) -> std::io::Result<()>,
 ) -> std::io::Result<()> {
-    let mut name = path.file_name().unwrap_or_default().to_os_string();
-    name.push(".part");
-    let tmp = path.with_file_name(name);
+    let tmp = temp_path(path);
     let result = (|| {
         let file = std::fs::File::create(&tmp)?;
         let mut w = std::io::BufWriter::new(file);
         fill(&mut w)?;
         w.flush()?;
+        w.get_ref().sync_all()?;
         drop(w);
         std::fs::rename(&tmp, path)
     })();
     if result.is_err() {
         let _ = std::fs::remove_file(&tmp);
     }
-    result
+    result?;
+    sync_dir(path.parent().unwrap_or(Path::new(".")))
 }
 
-/// Write `signal` to `out/rel` as `out/rel.part`, then rename it into place. The error names
-/// the file.
+/// A file that could not be written, with the system's reason when there is one.
+#[derive(Debug, thiserror::Error)]
+#[error("{}: cannot write: {source}", path.display())]
+pub struct WriteError {
+    /// The file.
+    pub path: PathBuf,
+    /// Why (an encoder's refusal is an [`std::io::ErrorKind::Other`]).
+    pub source: std::io::Error,
+}
+
+impl WriteError {
+    /// The disk (or the quota, or the file-size limit) is full: no later write will fare
+    /// better, so the run must stop rather than reject clip after clip.
+    pub fn is_out_of_space(&self) -> bool {
+        is_out_of_space(&self.source)
+    }
+}
+
+/// Whether an I/O error means there is no room left to write (`ENOSPC`, `EDQUOT`, `EFBIG`).
+pub fn is_out_of_space(e: &std::io::Error) -> bool {
+    use std::io::ErrorKind;
+    matches!(
+        e.kind(),
+        ErrorKind::StorageFull | ErrorKind::FileTooLarge | ErrorKind::QuotaExceeded
+    )
+}
+
+/// Write `signal` to `out/rel` under a temporary name, flush it to disk and rename it into
+/// place. The folder is not flushed here: the caller calls [`sync_dir`] once for a batch of
+/// files, before anything that counts on them (a completion record, a manifest) is written.
 ///
 /// # Errors
-/// Encoding or renaming; the `.part` file is removed.
+/// Encoding, writing, flushing or renaming; the temporary file is removed.
 pub fn write_wav_atomically(
     out: &Path,
     rel: &str,
     signal: &Audio,
     format: SampleFormat,
-) -> Result<PathBuf, String> {
+) -> Result<PathBuf, WriteError> {
     let dest = out.join(rel);
-    let tmp = out.join(format!("{rel}.part"));
-    audio::write_wav(&tmp, signal, format).map_err(|e| {
+    let tmp = temp_path(&dest);
+    let result = audio::write_wav(&tmp, signal, format)
+        .map_err(|e| match e {
+            AudioError::Io { source, .. } => source,
+            other => std::io::Error::other(other.to_string()),
+        })
+        .and_then(|()| std::fs::File::open(&tmp)?.sync_all())
+        .and_then(|()| std::fs::rename(&tmp, &dest));
+    result.map_err(|source| {
         let _ = std::fs::remove_file(&tmp);
-        e.to_string()
-    })?;
-    std::fs::rename(&tmp, &dest).map_err(|e| {
-        let _ = std::fs::remove_file(&tmp);
-        format!("{}: {e}", dest.display())
+        WriteError {
+            path: dest.clone(),
+            source,
+        }
     })?;
     Ok(dest)
+}
+
+/// Frames of a WAV file that is whole: its RIFF length matches the file's length, so it was
+/// finished and not cut short since. `None` for a missing, unreadable, unfinished or
+/// truncated file.
+pub fn whole_wav_frames(path: &Path) -> Option<(u32, u64)> {
+    use std::io::Read;
+    let mut file = std::fs::File::open(path).ok()?;
+    let len = file.metadata().ok()?.len();
+    let mut head = [0u8; 8];
+    file.read_exact(&mut head).ok()?;
+    let riff = u32::from_le_bytes([head[4], head[5], head[6], head[7]]);
+    if &head[..4] != b"RIFF" || u64::from(riff) + 8 != len {
+        return None;
+    }
+    let reader = hound::WavReader::open(path).ok()?;
+    let spec = reader.spec();
+    let frames = u64::from(reader.duration());
+    let data = frames * u64::from(spec.bits_per_sample / 8) * u64::from(spec.channels);
+    (data <= len).then_some((spec.sample_rate, frames))
 }
 
 #[cfg(test)]
@@ -87,12 +249,54 @@ mod tests {
     use super::*;
 
     #[test]
-    fn stems_are_safe_and_distinct() {
+    fn plain_ids_are_kept_and_others_escaped() {
         assert_eq!(file_stem("dock-01"), "dock-01");
-        let a = file_stem("north/dock 1");
-        let b = file_stem("north_dock_1");
-        assert!(a.starts_with("north_dock_1-"), "{a}");
+        assert_eq!(file_stem("aisle_3.v2"), "aisle_3.v2");
+        assert_eq!(file_stem("north/dock 1"), "north%2Fdock%201");
+        assert_eq!(file_stem(".hidden"), "%2Ehidden");
+        assert_eq!(file_stem("../x"), "%2E.%2Fx");
+        // The pair that shared `takes/north_dock_1-bfc812e8.t0.wav` before.
+        assert_ne!(
+            file_stem("north/dock 1"),
+            file_stem("north_dock_1-bfc812e8")
+        );
+        assert_eq!(file_stem("north_dock_1-bfc812e8"), "north_dock_1-bfc812e8");
+    }
+
+    #[test]
+    fn long_ids_are_cut_and_hashed() {
+        let long = "a".repeat(300);
+        let s = file_stem(&long);
+        assert_eq!(s.len(), MAX_STEM_BYTES);
+        assert!(s.starts_with("aaaa") && s.contains('~'), "{s}");
+        assert_ne!(s, file_stem(&"a".repeat(301)));
+        // An escape is never split at the cut.
+        let s = file_stem(&"é".repeat(200));
+        let readable = s.split('~').next().unwrap_or_default();
+        assert!(readable.len().is_multiple_of(6), "{s}");
+        assert_eq!(file_stem("").len(), HASH_HEX + 1);
+    }
+
+    #[test]
+    fn temp_names_are_unique_and_recognised() {
+        let a = temp_path(Path::new("out/takes/x.t0.wav"));
+        let b = temp_path(Path::new("out/takes/x.t0.wav"));
         assert_ne!(a, b);
-        assert!(!file_stem("../x").contains('/'));
+        let name = a.file_name().and_then(|n| n.to_str()).unwrap_or_default();
+        assert!(
+            name.starts_with(&format!("x.t0.wav.{}.", std::process::id())),
+            "{name}"
+        );
+        assert!(is_temp_name(name));
+        for not_ours in [
+            "x.part",
+            "x.wav.part",
+            "notes.1.part",
+            ".1.2.part",
+            "x.1.a.part",
+            "x.1.2",
+        ] {
+            assert!(!is_temp_name(not_ours), "{not_ours}");
+        }
     }
 }

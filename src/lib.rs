@@ -33,6 +33,7 @@ pub mod export;
 pub mod files;
 pub mod import;
 pub mod noise;
+pub mod outdir;
 pub mod recipe;
 pub mod remap;
 pub mod room;

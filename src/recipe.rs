@@ -141,6 +141,16 @@ impl Plan {
     }
 }
 
+impl Plan {
+    /// Every file the plan's steps read when it was loaded (noise banks, measured
+    /// responses), in step order, each once.
+    pub fn inputs(&self) -> Vec<PathBuf> {
+        let mut seen = BTreeSet::new();
+        let all = self.steps.iter().flat_map(|p| p.step.inputs());
+        all.filter(|p| seen.insert(p.clone())).collect()
+    }
+}
+
 /// Parameters of one `[[step]]` table, handed to the step's parser. Each key is taken once;
 /// [`Params::finish`] then reports any key nobody took, so a misspelt key is an error.
 pub struct Params<'a> {

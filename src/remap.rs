@@ -12,6 +12,7 @@ use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 
 use crate::files::{file_stem, write_atomically};
+use crate::outdir::FolderLock;
 use crate::timemap::TimeMap;
 use crate::transcript::{Manifest, Problem, tsv, webvtt};
 
@@ -117,9 +118,11 @@ pub struct Report {
 /// `out/<take stem>.<ext>`.
 ///
 /// # Errors
-/// Only when the output folder or a file in it cannot be written.
+/// Only when the output folder or a file in it cannot be written, or another process holds
+/// its lock ([`FolderLock`]).
 pub fn remap(manifest: &Manifest, labels: &Path, out: &Path) -> std::io::Result<Report> {
-    std::fs::create_dir_all(out)?;
+    // One writer at a time: held until the last file is written.
+    let _lock = FolderLock::acquire(out).map_err(std::io::Error::other)?;
     let mut report = Report {
         takes: manifest.entries.len(),
         problems: manifest.problems.clone(),

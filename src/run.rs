@@ -6,6 +6,7 @@
 //! `rejects.jsonl` with the reason, and the run goes on. The manifest and rejects are
 //! written in input order at the end, also by rename.
 
+use std::collections::HashSet;
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
@@ -15,7 +16,11 @@ use serde::Serialize;
 
 use crate::audio::{self, Audio, SampleFormat};
 use crate::dsp::resample::resample;
-use crate::files::{self, file_stem, write_wav_atomically};
+use crate::files::{self, WriteError, file_stem, write_wav_atomically};
+use crate::outdir::earlier::JOURNAL_NAME;
+use crate::outdir::{
+    Earlier, FolderLock, LOCK_NAME, LockError, Overwrite, Targets, refuse_overwrite,
+};
 use crate::recipe::Plan;
 use crate::seed::{TakeRng, step_seed, take_seed};
 use crate::steps::{TakeContext, run_step};
@@ -62,14 +67,44 @@ pub struct Summary {
     pub clips_resumed: usize,
     /// Clips (and unreadable lines) in `rejects.jsonl`.
     pub rejected: usize,
-    /// Takes written.
+    /// Takes in the manifest (made now or kept).
     pub takes: usize,
+    /// Of those, takes kept from an earlier run.
+    pub takes_kept: usize,
     /// Seconds of source audio in the clips done.
     pub seconds_in: f64,
-    /// Seconds of take audio written.
+    /// Of those, seconds in the clips kept.
+    pub seconds_in_kept: f64,
+    /// Seconds of take audio in the manifest.
     pub seconds_out: f64,
+    /// Of those, seconds in the takes kept.
+    pub seconds_out_kept: f64,
+    /// Files of earlier runs into this folder that this run did not make again, removed.
+    pub removed: usize,
     /// Wall-clock seconds of the run.
     pub wall_seconds: f64,
+}
+
+impl Summary {
+    /// Takes made by this run.
+    pub fn takes_made(&self) -> usize {
+        self.takes - self.takes_kept
+    }
+
+    /// Seconds of take audio made by this run.
+    pub fn seconds_out_made(&self) -> f64 {
+        self.seconds_out - self.seconds_out_kept
+    }
+
+    /// Take audio made per wall-clock second (kept takes cost no work and are not
+    /// counted); 0 for a run that took no time.
+    pub fn made_per_second(&self) -> f64 {
+        if self.wall_seconds > 0.0 {
+            self.seconds_out_made() / self.wall_seconds
+        } else {
+            0.0
+        }
+    }
 }
 
 /// A failure that stops the whole run (per-clip failures never do).
@@ -83,7 +118,7 @@ pub enum RunError {
         /// Why.
         source: std::io::Error,
     },
-    /// The output folder or a file in it cannot be written.
+    /// The output folder or a file in it cannot be written (a full disk among others).
     #[error("{path}: cannot write: {source}")]
     Output {
         /// The file or folder.
@@ -91,6 +126,12 @@ pub enum RunError {
         /// Why.
         source: std::io::Error,
     },
+    /// Another process is writing into the output folder.
+    #[error(transparent)]
+    Locked(#[from] LockError),
+    /// The output folder would overwrite one of the run's inputs; nothing was written.
+    #[error(transparent)]
+    WouldOverwrite(#[from] Overwrite),
     /// The thread pool could not be built.
     #[error("cannot start {threads} threads: {reason}")]
     Threads {
@@ -101,11 +142,21 @@ pub enum RunError {
     },
 }
 
+impl RunError {
+    /// An error of writing into the output folder.
+    pub(crate) fn output(path: &Path) -> impl FnOnce(std::io::Error) -> RunError {
+        let path = path.to_path_buf();
+        move |source| RunError::Output { path, source }
+    }
+}
+
 /// Where a run reads and writes.
 #[derive(Debug, Clone)]
 pub struct RunSpec<'a> {
     /// The checked recipe.
     pub plan: &'a Plan,
+    /// The recipe file the plan was read from, when there is one (never overwritten).
+    pub recipe: Option<&'a Path>,
     /// Input manifest.
     pub input: &'a Path,
     /// Output folder (created if needed).
@@ -142,28 +193,65 @@ impl From<Problem> for Reject {
 
 /// Run a plan over a manifest.
 ///
+/// Before anything is written: the output folder is refused when it would overwrite an input
+/// (the manifest, its audio, the recipe, the files the recipe reads), and locked
+/// ([`FolderLock`]) for the whole run, so a second run into it is refused at once. Then the
+/// earlier manifest is set aside ([`Earlier`]), clips run, the new manifest and rejects are
+/// written, and files of earlier runs that this run did not make again are removed. Every
+/// file is flushed to disk before it is renamed into place.
+///
 /// # Errors
-/// Only run-wide failures; a bad clip is a reject, not an error.
+/// Only run-wide failures; a bad clip is a reject, not an error. A write that fails for lack
+/// of space (or any other failure of the file system) stops the run: the clips finished so
+/// far are kept for the next run of the same command.
 pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summary, RunError> {
     let started = Instant::now();
     let manifest = read_manifest(spec.input).map_err(|source| RunError::Manifest {
         path: spec.input.to_path_buf(),
         source,
     })?;
+    let plan_inputs = spec.plan.inputs();
+    let targets = Targets::new(
+        spec.out,
+        &[MANIFEST_NAME, REJECTS_NAME, LOCK_NAME, JOURNAL_NAME],
+        &[TAKES_DIR, DONE_DIR],
+    );
+    let audio: Vec<(String, PathBuf)> = manifest
+        .entries
+        .iter()
+        .map(|e| {
+            let what = format!("audio of clip `{}` (line {})", e.clip.id, e.line);
+            (what, manifest.base().join(&e.clip.audio))
+        })
+        .collect();
+    let named = [("input manifest".to_string(), spec.input)]
+        .into_iter()
+        .chain(spec.recipe.map(|r| ("recipe".to_string(), r)))
+        .chain(
+            plan_inputs
+                .iter()
+                .map(|p| ("file the recipe reads".into(), p.as_path())),
+        )
+        .chain(audio.iter().map(|(w, p)| (w.clone(), p.as_path())));
+    refuse_overwrite(&targets, named)?;
+    let _lock = FolderLock::acquire(spec.out)?;
+
     let takes_dir = spec.out.join(TAKES_DIR);
-    std::fs::create_dir_all(&takes_dir).map_err(|source| RunError::Output {
-        path: takes_dir.clone(),
-        source,
-    })?;
     let done_dir = spec.out.join(DONE_DIR);
-    std::fs::create_dir_all(&done_dir).map_err(|source| RunError::Output {
-        path: done_dir.clone(),
-        source,
-    })?;
-    remove_partial_files(&takes_dir).map_err(|source| RunError::Output {
-        path: takes_dir.clone(),
-        source,
-    })?;
+    for dir in [&takes_dir, &done_dir] {
+        std::fs::create_dir_all(dir).map_err(RunError::output(dir))?;
+    }
+    for dir in [spec.out, &takes_dir, &done_dir] {
+        files::remove_stale_temp_files(dir).map_err(RunError::output(dir))?;
+    }
+    let mut earlier = Earlier::begin(
+        spec.out,
+        &[TAKES_DIR, DONE_DIR],
+        MANIFEST_NAME,
+        &[REJECTS_NAME],
+        |c| take_files(c).map(str::to_string).collect(),
+    )
+    .map_err(RunError::output(spec.out))?;
     let threads = spec.threads.unwrap_or(0);
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
@@ -175,23 +263,36 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
     on_event(Event::Started {
         clips: manifest.entries.len(),
     });
+    let ctx = ClipContext {
+        plan: spec.plan,
+        manifest: &manifest,
+        out: spec.out,
+        plan_key: plan_key(spec.plan, &plan_inputs),
+    };
     let results: Vec<Result<ClipResult, Reject>> = pool.install(|| {
         manifest
             .entries
             .par_iter()
             .map(|entry| {
-                let r = process_clip(spec.plan, &manifest, entry, spec.out);
-                on_event(Event::ClipDone { ok: r.is_ok() });
+                let r = match process_clip(&ctx, entry) {
+                    Ok(done) => Ok(Ok(done)),
+                    Err(Failure::Reject(r)) => Ok(Err(r)),
+                    Err(Failure::Stop(e)) => Err(e),
+                };
+                if let Ok(r) = &r {
+                    on_event(Event::ClipDone { ok: r.is_ok() });
+                }
                 r
             })
-            .collect()
-    });
+            .collect::<Result<_, RunError>>()
+    })?;
 
     let mut summary = Summary {
         clips_in: manifest.entries.len() + manifest.problems.len(),
         ..Summary::default()
     };
     let mut takes = Vec::new();
+    let mut records = Vec::new();
     let mut rejects: Vec<Reject> = manifest
         .problems
         .iter()
@@ -201,11 +302,18 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
     for result in results {
         match result {
             Ok(done) => {
+                let seconds: f64 = done.takes.iter().filter_map(|c| c.duration).sum();
                 summary.clips_done += 1;
-                summary.clips_resumed += usize::from(done.resumed);
                 summary.seconds_in += done.seconds_in;
                 summary.takes += done.takes.len();
-                summary.seconds_out += done.takes.iter().filter_map(|c| c.duration).sum::<f64>();
+                summary.seconds_out += seconds;
+                if done.resumed {
+                    summary.clips_resumed += 1;
+                    summary.takes_kept += done.takes.len();
+                    summary.seconds_in_kept += done.seconds_in;
+                    summary.seconds_out_kept += seconds;
+                }
+                records.push(done.record);
                 takes.extend(done.takes);
             }
             Err(reject) => rejects.push(reject),
@@ -213,6 +321,7 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
     }
     rejects.sort_by_key(|r| r.line);
     summary.rejected = rejects.len();
+    files::sync_dir(&done_dir).map_err(RunError::output(&done_dir))?;
     write_atomically(&spec.out.join(MANIFEST_NAME), |w| write_manifest(w, &takes))?;
     write_atomically(&spec.out.join(REJECTS_NAME), |w| {
         for r in &rejects {
@@ -221,8 +330,114 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
         }
         Ok(())
     })?;
+    // Records of clips not done now (dropped from the input, rejected, made by another
+    // plan) and the takes they list are earlier files too.
+    for (rel, record) in earlier_records(&done_dir) {
+        earlier.add(rel);
+        for f in record.takes.iter().flat_map(take_files) {
+            earlier.add(f.to_string());
+        }
+    }
+    let keep: HashSet<&str> = takes
+        .iter()
+        .flat_map(take_files)
+        .chain(records.iter().map(String::as_str))
+        .collect();
+    summary.removed = earlier.finish(&keep).map_err(RunError::output(spec.out))?;
     summary.wall_seconds = started.elapsed().as_secs_f64();
     Ok(summary)
+}
+
+/// Why a clip did not finish: a reject (the run goes on) or a failure of the output that
+/// stops the run.
+pub(crate) enum Failure<R = Reject> {
+    /// The clip goes to the rejects.
+    Reject(R),
+    /// The run stops.
+    Stop(RunError),
+}
+
+/// A failed write: a stop when the file system failed (no space, no permission...), which
+/// every later clip would meet too; a reject when only this file could not be encoded.
+pub(crate) fn write_failure<R>(
+    e: WriteError,
+    reject: impl FnOnce(String) -> Failure<R>,
+) -> Failure<R> {
+    if e.source.kind() == std::io::ErrorKind::Other && !e.is_out_of_space() {
+        reject(e.to_string())
+    } else {
+        Failure::Stop(RunError::Output {
+            path: e.path,
+            source: e.source,
+        })
+    }
+}
+
+/// What every clip of a run shares.
+struct ClipContext<'a> {
+    plan: &'a Plan,
+    manifest: &'a Manifest,
+    out: &'a Path,
+    /// [`plan_key`] of the run.
+    plan_key: u64,
+}
+
+/// The files of a take record, relative to the output folder: its audio and its stems.
+fn take_files(take: &Clip) -> impl Iterator<Item = &str> {
+    let stems = take
+        .origin
+        .iter()
+        .flat_map(|o| &o.steps)
+        .flat_map(|s| s.stems.values())
+        .filter_map(Value::as_str);
+    std::iter::once(take.audio.as_str()).chain(stems)
+}
+
+/// Completion records in `.done/` (relative path, content); files there that do not read
+/// as one are not ours and are left alone.
+fn earlier_records(done_dir: &Path) -> Vec<(String, ClipResult)> {
+    let Ok(entries) = std::fs::read_dir(done_dir) else {
+        return Vec::new();
+    };
+    entries
+        .filter_map(Result::ok)
+        .filter_map(|e| {
+            let name = e.file_name().into_string().ok()?;
+            if !name.ends_with(".json") {
+                return None;
+            }
+            let text = std::fs::read_to_string(e.path()).ok()?;
+            let record: ClipResult = serde_json::from_str(&text).ok()?;
+            Some((format!("{DONE_DIR}/{name}"), record))
+        })
+        .collect()
+}
+
+/// The plan's fingerprint with the size and modification time of every file its steps
+/// read: a noise file or response changed, added or removed makes every record stale.
+fn plan_key(plan: &Plan, inputs: &[PathBuf]) -> u64 {
+    let stamps: Vec<String> = inputs
+        .iter()
+        .map(|p| format!("{}|{}", p.display(), file_stamp(p)))
+        .collect();
+    crate::seed::stable_hash(&[
+        &plan.fingerprint().to_le_bytes(),
+        stamps.join("\n").as_bytes(),
+    ])
+}
+
+/// A file's size and modification time (nanoseconds), or empty when it cannot be read.
+fn file_stamp(path: &Path) -> String {
+    std::fs::metadata(path)
+        .map(|m| {
+            let modified = m
+                .modified()
+                .ok()
+                .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
+                .map_or(0, |d| d.as_nanos());
+            format!("{}|{modified}", m.len())
+        })
+        .unwrap_or_default()
 }
 
 /// A finished clip: its takes as manifest records. Also the content of its completion
@@ -235,82 +450,69 @@ struct ClipResult {
     takes: Vec<Clip>,
     #[serde(skip)]
     resumed: bool,
+    /// The record's path relative to the output folder.
+    #[serde(skip)]
+    record: String,
 }
 
-/// What decides a clip's takes: the plan, the clip's manifest record and its audio file's
-/// size and modification time. A completion record with another fingerprint is stale.
-fn clip_fingerprint(plan: &Plan, clip: &Clip, audio_path: &Path) -> String {
+/// What decides a clip's takes: the plan and the files it reads ([`plan_key`]), the clip's
+/// manifest record and its audio file's size and modification time. A completion record
+/// with another fingerprint is stale.
+fn clip_fingerprint(plan_key: u64, clip: &Clip, audio_path: &Path) -> String {
     let record = serde_json::to_string(clip).unwrap_or_default();
-    let file = std::fs::metadata(audio_path)
-        .map(|m| {
-            let modified = m
-                .modified()
-                .ok()
-                .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
-                .map_or(0, |d| d.as_nanos());
-            format!("{}|{modified}", m.len())
-        })
-        .unwrap_or_default();
     let h = crate::seed::stable_hash(&[
-        &plan.fingerprint().to_le_bytes(),
+        &plan_key.to_le_bytes(),
         record.as_bytes(),
-        file.as_bytes(),
+        file_stamp(audio_path).as_bytes(),
     ]);
     format!("{h:016x}")
 }
 
 /// The clip's earlier result, when an earlier run of the same plan finished it and every
-/// take file is still there.
-fn finished_earlier(record: &Path, fingerprint: &str, out: &Path) -> Option<ClipResult> {
+/// take file is still there and whole: a take's WAV holds the frames its record's duration
+/// says, at the plan's rate, and a stem is a finished WAV at that rate.
+fn finished_earlier(record: &Path, fingerprint: &str, out: &Path, rate: u32) -> Option<ClipResult> {
     let text = std::fs::read_to_string(record).ok()?;
     let mut done: ClipResult = serde_json::from_str(&text).ok()?;
-    let files = done.takes.iter().flat_map(|t| {
-        let stems = t
-            .origin
-            .iter()
-            .flat_map(|o| &o.steps)
-            .flat_map(|s| s.stems.values());
-        std::iter::once(t.audio.as_str()).chain(stems.filter_map(Value::as_str))
-    });
-    if done.fingerprint != fingerprint || !files.into_iter().all(|f| out.join(f).is_file()) {
+    if done.fingerprint != fingerprint {
         return None;
+    }
+    for take in &done.takes {
+        let frames = (take.duration? * f64::from(rate)).round() as u64;
+        if files::whole_wav_frames(&out.join(&take.audio)) != Some((rate, frames)) {
+            return None;
+        }
+        for stem in take_files(take).skip(1) {
+            if files::whole_wav_frames(&out.join(stem)).is_none_or(|(r, _)| r != rate) {
+                return None;
+            }
+        }
     }
     done.resumed = true;
     Some(done)
 }
 
-/// Remove `*.part` files an interrupted run left behind.
-fn remove_partial_files(dir: &Path) -> std::io::Result<()> {
-    for entry in std::fs::read_dir(dir)? {
-        let path = entry?.path();
-        if path.extension().is_some_and(|e| e == "part") {
-            std::fs::remove_file(&path)?;
-        }
-    }
-    Ok(())
-}
-
-fn process_clip(
-    plan: &Plan,
-    manifest: &Manifest,
-    entry: &Entry,
-    out: &Path,
-) -> Result<ClipResult, Reject> {
+fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Failure> {
+    let (plan, manifest, out) = (ctx.plan, ctx.manifest, ctx.out);
     let clip = &entry.clip;
-    let reject = |field: &str, reason: String| Reject {
-        line: entry.line,
-        id: Some(clip.id.clone()),
-        field: field.to_string(),
-        reason,
+    let reject = |field: &str, reason: String| {
+        Failure::Reject(Reject {
+            line: entry.line,
+            id: Some(clip.id.clone()),
+            field: field.to_string(),
+            reason,
+        })
     };
     if let Some((field, reason)) = validate(clip, None).into_iter().next() {
         return Err(reject(&field, reason));
     }
     let path = manifest.base().join(&clip.audio);
     let stem = file_stem(&clip.id);
-    let record = out.join(DONE_DIR).join(format!("{stem}.json"));
-    let fingerprint = clip_fingerprint(plan, clip, &path);
-    if let Some(done) = finished_earlier(&record, &fingerprint, out) {
+    let record_rel = format!("{DONE_DIR}/{stem}.json");
+    let record = out.join(&record_rel);
+    let fingerprint = clip_fingerprint(ctx.plan_key, clip, &path);
+    if let Some(mut done) = finished_earlier(&record, &fingerprint, out, plan.rate) {
+        done.record = record_rel;
         return Ok(done);
     }
     let source = audio::decode(&path, plan.channels).map_err(|e| reject("audio", e.to_string()))?;
@@ -344,7 +546,8 @@ fn process_clip(
                 .map(|(r, a)| (r, a, SampleFormat::Float32)),
         );
         for (rel, signal, format) in files {
-            let dest = write_wav_atomically(out, rel, signal, format).map_err(|e| reject("", e))?;
+            let dest = write_wav_atomically(out, rel, signal, format)
+                .map_err(|e| write_failure(e, |m| reject("", m)))?;
             written.push(dest);
         }
         takes.push(Clip {
@@ -360,13 +563,22 @@ fn process_clip(
         seconds_in,
         takes,
         resumed: false,
+        record: record_rel,
     };
+    // The takes' names are flushed before the record that counts on them.
+    let takes_dir = out.join(TAKES_DIR);
     let outcome = outcome.and_then(|()| {
-        write_atomically(&record, |w| {
-            serde_json::to_writer(&mut *w, &done)?;
-            Ok(())
-        })
-        .map_err(|e| reject("", e.to_string()))
+        files::sync_dir(&takes_dir)
+            .and_then(|()| {
+                files::write_atomically(&record, |w| {
+                    serde_json::to_writer(&mut *w, &done)?;
+                    Ok(())
+                })
+            })
+            .map_err(|source| {
+                let path = record.clone();
+                write_failure(WriteError { path, source }, |m| reject("", m))
+            })
     });
     if let Err(r) = outcome {
         for f in written {

@@ -159,8 +159,8 @@ fn output_is_byte_identical_for_one_and_two_threads() {
         assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
         results.push(files_under(&out));
     }
-    // manifest, rejects, six takes and two completion records.
-    assert_eq!(results[0].len(), 2 + 6 + 2);
+    // manifest, rejects, the (empty) lock file, six takes and two completion records.
+    assert_eq!(results[0].len(), 3 + 6 + 2);
     assert!(
         results[0] == results[1],
         "outputs differ between --threads 1 and 2"
@@ -408,12 +408,14 @@ fn an_interrupted_run_resumed_with_the_same_command_matches_a_clean_run() {
         std::fs::remove_file(out.join(format!("takes/b.t{k}.wav"))).unwrap();
     }
     std::fs::remove_file(out.join(".done/b.json")).unwrap();
-    std::fs::write(out.join("takes/b.t0.wav.part"), b"RIFF half").unwrap();
+    // A temporary file of the tool's own pattern (`<name>.<pid>.<n>.part`).
+    std::fs::write(out.join("takes/b.t0.wav.4242.7.part"), b"RIFF half").unwrap();
     std::fs::remove_file(out.join("manifest.jsonl")).unwrap();
     let o = run(&out);
     assert!(o.status.success());
     let stdout = String::from_utf8_lossy(&o.stdout);
-    assert!(stdout.contains("resumed 1 clips"), "{stdout}");
+    assert!(stdout.contains("kept    1 clips (3 takes"), "{stdout}");
+    assert!(stdout.contains("made    3 takes"), "{stdout}");
     let (got, want) = (files_under(&out), files_under(&clean));
     let names = |v: &[(String, Vec<u8>)]| v.iter().map(|f| f.0.clone()).collect::<Vec<_>>();
     assert_eq!(names(&got), names(&want));
@@ -423,7 +425,7 @@ fn an_interrupted_run_resumed_with_the_same_command_matches_a_clean_run() {
     // A changed recipe makes the records stale: everything is made again.
     std::fs::write(&recipe, RECIPE.replace("seed = 11", "seed = 12")).unwrap();
     let o = run(&out);
-    assert!(!String::from_utf8_lossy(&o.stdout).contains("resumed"));
+    assert!(!String::from_utf8_lossy(&o.stdout).contains("kept"));
     assert!(files_under(&out) != files_under(&clean));
 }
 
@@ -512,7 +514,8 @@ fn every_step_gives_the_same_bytes_on_one_and_two_threads() {
         assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
         outs.push(files_under(&out));
     }
-    assert_eq!(outs[0].len(), 1 + 1 + 40 + 10);
+    // manifest, rejects, the (empty) lock file, takes, completion records.
+    assert_eq!(outs[0].len(), 1 + 1 + 1 + 40 + 10);
     for (a, b) in outs[0].iter().zip(&outs[1]) {
         assert!(a == b, "{} differs between 1 and 2 threads", a.0);
     }

@@ -29,6 +29,7 @@ fn run_speed(factor: f64, out: &Path) -> Vec<Clip> {
     let manifest = demo().join("manifest.jsonl");
     let spec = RunSpec {
         plan: &plan,
+        recipe: None,
         input: &manifest,
         out,
         threads: None,

@@ -334,14 +334,14 @@ impl MonoSink {
                 "decoded audio has no channels".to_string(),
             ));
         }
-        if let ChannelPolicy::Pick(wanted) = self.policy {
-            if wanted >= n {
-                return Err(AudioError::NoSuchChannel {
-                    path: path.to_path_buf(),
-                    wanted,
-                    channels: n,
-                });
-            }
+        if let ChannelPolicy::Pick(wanted) = self.policy
+            && wanted >= n
+        {
+            return Err(AudioError::NoSuchChannel {
+                path: path.to_path_buf(),
+                wanted,
+                channels: n,
+            });
         }
         if n == 1 {
             let start = out.len();

@@ -25,9 +25,10 @@ const MAX_HEADER_BYTES: u64 = 68;
 ///
 /// # Errors
 /// - [`AudioError::NotFinite`] for the first NaN or infinite sample; nothing is created.
-/// - [`AudioError::Write`] for a zero sample rate, audio too long for a RIFF file (4 GiB), or
-///   a failing writer (hound's message). A file left half-written by a writer failing after
-///   creating it is removed, best effort.
+/// - [`AudioError::Write`] for a zero sample rate or audio too long for a RIFF file (4 GiB).
+/// - [`AudioError::Io`] when the file system fails (a full disk among others), with its
+///   error kind. A file left half-written by a writer failing after creating it is removed,
+///   best effort.
 pub fn write_wav(path: &Path, audio: &Audio, format: SampleFormat) -> Result<(), AudioError> {
     if let Some(index) = audio.samples.iter().position(|x| !x.is_finite()) {
         return Err(AudioError::NotFinite {
@@ -60,7 +61,16 @@ pub fn write_wav(path: &Path, audio: &Audio, format: SampleFormat) -> Result<(),
         sample_format,
     };
 
-    let mut writer = WavWriter::create(path, spec).map_err(|e| write_err(e.to_string()))?;
+    // A failing file system keeps its error kind (a full disk must stop a run, not reject a
+    // clip); hound's own refusals are messages.
+    let hound_err = |e: hound::Error| match e {
+        hound::Error::IoError(source) => AudioError::Io {
+            path: path.to_path_buf(),
+            source,
+        },
+        other => write_err(other.to_string()),
+    };
+    let mut writer = WavWriter::create(path, spec).map_err(hound_err)?;
     let written = match format {
         SampleFormat::Pcm16 => write_pcm16(&mut writer, &audio.samples),
         SampleFormat::Float32 => audio
@@ -71,7 +81,7 @@ pub fn write_wav(path: &Path, audio: &Audio, format: SampleFormat) -> Result<(),
     written.and_then(|()| writer.finalize()).map_err(|e| {
         // The file exists now and is incomplete: do not leave a broken WAV at `path`.
         let _ = std::fs::remove_file(path);
-        write_err(e.to_string())
+        hound_err(e)
     })
 }
 

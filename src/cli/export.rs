@@ -4,6 +4,7 @@ use std::path::Path;
 use std::process::ExitCode;
 
 use retake::export::{Format, Outcome, export_clip};
+use retake::outdir::FolderLock;
 use retake::transcript::read_manifest;
 
 pub fn export(manifest: &Path, formats: &[Format], out: Option<&Path>, replace: bool) -> ExitCode {
@@ -17,6 +18,15 @@ pub fn export(manifest: &Path, formats: &[Format], out: Option<&Path>, replace: 
     for p in &read.problems {
         eprintln!("{p}");
     }
+    // One writer at a time into a folder of exports. Beside the audio each file is written
+    // by one atomic rename, and source folders get no lock file.
+    let _lock = match out.map(FolderLock::acquire).transpose() {
+        Ok(l) => l,
+        Err(e) => {
+            eprintln!("retake: {e}");
+            return ExitCode::FAILURE;
+        }
+    };
     let (mut written, mut untimed, mut failed) = (0, 0, 0);
     let mut kept = Vec::new();
     for entry in &read.entries {

@@ -50,6 +50,7 @@ pub fn run(
     };
     let spec = RunSpec {
         plan: &plan,
+        recipe: Some(recipe_path),
         input,
         out,
         threads,
@@ -59,7 +60,12 @@ pub fn run(
     match result {
         Err(e) => {
             eprintln!("retake: {e}");
-            ExitCode::FAILURE
+            // An output over the input is a command line to change; the rest could not run.
+            if matches!(e, run::RunError::WouldOverwrite(_)) {
+                ExitCode::from(2)
+            } else {
+                ExitCode::FAILURE
+            }
         }
         Ok(summary) => {
             print_summary(&summary, out);
@@ -73,34 +79,41 @@ pub fn run(
 }
 
 fn print_summary(s: &Summary, out: &Path) {
-    let speed = if s.wall_seconds > 0.0 {
-        s.seconds_out / s.wall_seconds
-    } else {
-        0.0
-    };
     println!(
         "clips   {} read, {} done, {} rejected",
         s.clips_in, s.clips_done, s.rejected
     );
     if s.clips_resumed > 0 {
         println!(
-            "resumed {} clips were already finished by an earlier run of this recipe and kept",
-            s.clips_resumed
+            "kept    {} clips ({} takes, {:.1} s of audio) finished by an earlier run of this \
+             recipe",
+            s.clips_resumed, s.takes_kept, s.seconds_out_kept
         );
     }
-    println!("takes   {} written", s.takes);
     println!(
-        "audio   {:.3} h in, {:.3} h out ({:.1} s in, {:.1} s out)",
-        s.seconds_in / 3600.0,
-        s.seconds_out / 3600.0,
-        s.seconds_in,
-        s.seconds_out
+        "made    {} takes, {:.3} h of audio ({:.1} s) from {:.1} s of source",
+        s.takes_made(),
+        s.seconds_out_made() / 3600.0,
+        s.seconds_out_made(),
+        s.seconds_in - s.seconds_in_kept
+    );
+    if s.removed > 0 {
+        println!(
+            "removed {} files of an earlier run that this one did not make again",
+            s.removed
+        );
+    }
+    println!(
+        "time    {:.2} s, {:.0}x real time (audio made per wall second)",
+        s.wall_seconds,
+        s.made_per_second()
     );
     println!(
-        "time    {:.2} s, {:.0}x real time (output audio per wall second)",
-        s.wall_seconds, speed
+        "output  {} ({} takes, {:.3} h)",
+        out.join(run::MANIFEST_NAME).display(),
+        s.takes,
+        s.seconds_out / 3600.0
     );
-    println!("output  {}", out.join(run::MANIFEST_NAME).display());
     if s.rejected > 0 {
         println!(
             "rejects {} (one line per clip, with the reason)",

@@ -98,7 +98,7 @@ impl WsolaConfig {
     /// When the frame is odd or shorter than 4 samples, or the hop is 0 or longer than half
     /// a frame.
     pub fn check(&self) -> Result<(), WsolaConfigError> {
-        if self.frame_len < 4 || self.frame_len % 2 != 0 {
+        if self.frame_len < 4 || !self.frame_len.is_multiple_of(2) {
             return Err(WsolaConfigError::BadFrame(self.frame_len));
         }
         if self.hop_out == 0 || self.hop_out > self.frame_len / 2 {

@@ -81,6 +81,14 @@ impl NoiseBank {
             .collect()
     }
 
+    /// Every file of the bank folder that was read, usable or skipped (a skipped file that
+    /// becomes usable changes the bank).
+    pub fn paths(&self) -> Vec<PathBuf> {
+        let skipped = self.skipped.iter().map(|(rel, _)| rel);
+        let rels = self.files.iter().map(|f| &f.rel_path).chain(skipped);
+        rels.map(|rel| self.root.join(rel)).collect()
+    }
+
     /// Category names in sorted order.
     pub fn categories(&self) -> Vec<&str> {
         let mut c: Vec<&str> = self.files.iter().map(|f| f.category.as_str()).collect();

@@ -5,11 +5,11 @@ use super::labels::lines_of;
 use super::plan::{LeftOut, PlannedSlice, Reason, plan};
 use super::units::{Units, find_units};
 use super::window::{Window, frame_count};
-use super::{LeftOutRecord, SLICES_DIR, SliceReject, SliceSpec};
+use super::{SLICES_DIR, SliceReject, SliceSpec, LeftOutRecord};
 use crate::audio::Audio;
 use crate::files::file_stem;
 use crate::files::write_wav_atomically;
-use crate::run::Reject;
+use crate::run::{Failure, Reject, write_failure};
 use crate::transcript::{Clip, Entry, Manifest, validate};
 
 /// What one source clip gave.
@@ -27,21 +27,24 @@ pub(super) struct ClipOutcome {
     pub speech_left_out: f64,
 }
 
-/// Slice one clip; a clip that cannot be processed is a reject, and none of its slices remain.
+/// Slice one clip; a clip that cannot be processed is a reject, and none of its slices remain;
+/// a write the file system refuses stops the whole run.
 pub(super) fn slice_clip(
     spec: &SliceSpec<'_>,
     manifest: &Manifest,
     entry: &Entry,
-) -> Result<ClipOutcome, SliceReject> {
+) -> Result<ClipOutcome, Failure<SliceReject>> {
     let clip = &entry.clip;
-    let reject = |field: &str, reason: String| SliceReject {
-        file: manifest.path.display().to_string(),
-        reject: Reject {
-            line: entry.line,
-            id: Some(clip.id.clone()),
-            field: field.to_string(),
-            reason,
-        },
+    let reject = |field: &str, reason: String| {
+        Failure::Reject(SliceReject {
+            file: manifest.path.display().to_string(),
+            reject: Reject {
+                line: entry.line,
+                id: Some(clip.id.clone()),
+                field: field.to_string(),
+                reason,
+            },
+        })
     };
     if let Some((field, reason)) = validate(clip, None).into_iter().next() {
         return Err(reject(&field, reason));
@@ -99,7 +102,7 @@ pub(super) fn slice_clip(
                 .map_err(|e| reject("audio", e))?,
         };
         let dest = write_wav_atomically(spec.out, &rel, &signal, spec.format)
-            .map_err(|e| reject("", e))?;
+            .map_err(|e| write_failure(e, |m| reject("", m)))?;
         written.push(dest);
         outcome.seconds_out += signal.duration();
         outcome.speech_kept += match &units {

@@ -1,4 +1,4 @@
-//! `slice`: long recordings into training clips, sliced only in the silence between words.
+//! `slice`: long recordings into training clips, slice only in the silence between words.
 //!
 //! Per clip: check the labels, decode, check them against the audio's length, find the
 //! stretches no slice may split ([`units`]), choose the slices ([`plan`], whose doc states the
@@ -18,16 +18,18 @@ pub mod labels;
 pub mod plan;
 pub mod units;
 mod window;
-mod write;
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 use rayon::prelude::*;
 use serde::Serialize;
 
 use crate::audio::{ChannelPolicy, SampleFormat};
-use crate::run::{MANIFEST_NAME, REJECTS_NAME, Reject, RunError, write_atomically};
+use crate::files::{remove_stale_temp_files, sync_dir};
+use crate::outdir::earlier::JOURNAL_NAME;
+use crate::outdir::{Earlier, FolderLock, LOCK_NAME, Targets, refuse_overwrite};
+use crate::run::{Failure, MANIFEST_NAME, REJECTS_NAME, Reject, RunError, write_atomically};
 use crate::transcript::{read_manifest, write_manifest};
 use plan::{Limits, PadRange, PlanSpec, Reason};
 
@@ -132,14 +134,50 @@ pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
         path: spec.input.to_path_buf(),
         source,
     })?;
+    let targets = Targets::new(
+        spec.out,
+        &[
+            MANIFEST_NAME,
+            REJECTS_NAME,
+            LEFT_OUT_NAME,
+            LOCK_NAME,
+            JOURNAL_NAME,
+        ],
+        &[SLICES_DIR],
+    );
+    let audio: Vec<(String, PathBuf)> = manifest
+        .entries
+        .iter()
+        .map(|e| {
+            (
+                format!("audio of clip `{}`", e.clip.id),
+                manifest.base().join(&e.clip.audio),
+            )
+        })
+        .collect();
+    let inputs = audio.iter().map(|(w, p)| (w.clone(), p.as_path()));
+    refuse_overwrite(
+        &targets,
+        [("input manifest".to_string(), spec.input)]
+            .into_iter()
+            .chain(inputs),
+    )?;
+    let _lock = FolderLock::acquire(spec.out)?;
     let dir = spec.out.join(SLICES_DIR);
-    let output = |source| RunError::Output {
-        path: dir.clone(),
-        source,
-    };
-    std::fs::create_dir_all(&dir).map_err(output)?;
-    write::remove_partial_files(&dir).map_err(output)?;
-    let earlier = earlier_slices(spec.out);
+    std::fs::create_dir_all(&dir).map_err(RunError::output(&dir))?;
+    for d in [spec.out, &dir] {
+        remove_stale_temp_files(d).map_err(RunError::output(d))?;
+    }
+    // Slices an earlier run wrote here (with other limits, say) that this run does not make
+    // again are removed once the new manifest is in place, even after a kill in between.
+    let earlier = Earlier::begin(
+        spec.out,
+        &[SLICES_DIR],
+        MANIFEST_NAME,
+        &[REJECTS_NAME, LEFT_OUT_NAME],
+        |c| vec![c.audio.clone()],
+    )
+    .map_err(RunError::output(spec.out))?;
     let threads = spec.threads.unwrap_or(0);
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
@@ -152,9 +190,13 @@ pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
         manifest
             .entries
             .par_iter()
-            .map(|entry| clip::slice_clip(spec, &manifest, entry))
-            .collect()
-    });
+            .map(|entry| match clip::slice_clip(spec, &manifest, entry) {
+                Ok(done) => Ok(Ok(done)),
+                Err(Failure::Reject(r)) => Ok(Err(r)),
+                Err(Failure::Stop(e)) => Err(e),
+            })
+            .collect::<Result<Vec<_>, RunError>>()
+    })?;
 
     let mut summary = SliceSummary {
         clips_in: manifest.entries.len() + manifest.problems.len(),
@@ -186,37 +228,14 @@ pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
     rejects.sort_by_key(|r| r.reject.line);
     summary.rejected = rejects.len();
     summary.left_out = left_out.len();
-    write_atomically(&spec.out.join(MANIFEST_NAME), |w| {
-        write_manifest(w, &slices)
-    })?;
+    sync_dir(&dir).map_err(RunError::output(&dir))?;
+    write_atomically(&spec.out.join(MANIFEST_NAME), |w| write_manifest(w, &slices))?;
     write_jsonl(&spec.out.join(LEFT_OUT_NAME), &left_out)?;
     write_jsonl(&spec.out.join(REJECTS_NAME), &rejects)?;
-    // Slices an earlier run wrote here (with other limits, say) that this run did not make
-    // again would lie next to the new ones, listed nowhere: remove them.
     let kept: std::collections::HashSet<&str> = slices.iter().map(|c| c.audio.as_str()).collect();
-    for old in earlier.iter().filter(|a| !kept.contains(a.as_str())) {
-        let _ = std::fs::remove_file(spec.out.join(old));
-    }
+    earlier.finish(&kept).map_err(RunError::output(spec.out))?;
     summary.wall_seconds = started.elapsed().as_secs_f64();
     Ok(summary)
-}
-
-/// Audio of the slices listed in an earlier output manifest in `out`, when there is one
-/// (only paths under `slices/`, so nothing else is ever touched).
-fn earlier_slices(out: &Path) -> Vec<String> {
-    let Ok(earlier) = read_manifest(&out.join(MANIFEST_NAME)) else {
-        return Vec::new();
-    };
-    earlier
-        .entries
-        .into_iter()
-        .map(|e| e.clip.audio)
-        .filter(|a| {
-            Path::new(a).parent() == Some(Path::new(SLICES_DIR))
-                && a.ends_with(".wav")
-                && !a.contains("..")
-        })
-        .collect()
 }
 
 fn write_jsonl<T: Serialize>(path: &Path, records: &[T]) -> Result<(), RunError> {

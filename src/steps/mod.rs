@@ -105,6 +105,12 @@ pub trait Step: Send + Sync + std::fmt::Debug {
         false
     }
 
+    /// The files the step read when the recipe was loaded (noise bank files, measured
+    /// responses), so a change to any of them makes finished work stale.
+    fn inputs(&self) -> Vec<std::path::PathBuf> {
+        Vec::new()
+    }
+
     /// Process one take. `audio` is at the plan's rate and so must the result be; it is
     /// never empty when called through [`run_step`].
     ///

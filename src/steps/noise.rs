@@ -276,6 +276,10 @@ impl Step for Noise {
         "noise"
     }
 
+    fn inputs(&self) -> Vec<std::path::PathBuf> {
+        self.bank.paths()
+    }
+
     fn apply(
         &self,
         audio: Audio,

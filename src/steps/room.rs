@@ -49,6 +49,8 @@ enum Normalise {
 #[derive(Debug)]
 struct Measured {
     rel_path: String,
+    /// The file it was read from (a completion fingerprint covers it).
+    path: PathBuf,
     samples: Arc<Vec<f32>>,
     rt60_s: Option<f64>,
 }
@@ -183,6 +185,7 @@ fn load_measured(
         }
         out.push(Measured {
             rel_path: f.rel_path.clone(),
+            path,
             samples: Arc::new(f.samples.clone()),
             rt60_s: rt60(&f.samples, ctx.rate),
         });
@@ -344,6 +347,13 @@ impl Room {
 impl Step for Room {
     fn name(&self) -> &'static str {
         "room"
+    }
+
+    fn inputs(&self) -> Vec<PathBuf> {
+        match &self.source {
+            Source::Measured(m) => m.iter().map(|m| m.path.clone()).collect(),
+            Source::Simulated(_) => Vec::new(),
+        }
     }
 
     fn apply(

@@ -329,13 +329,13 @@ fn check_span(
             out.push((format!("{at}.{name}"), format!("{t} is not a finite time")));
         } else if t < 0.0 {
             out.push((format!("{at}.{name}"), format!("{t} s is negative")));
-        } else if let Some(d) = duration {
-            if t > d + END_TOLERANCE_S {
-                out.push((
-                    format!("{at}.{name}"),
-                    format!("{t} s is past the end of the audio ({d:.4} s)"),
-                ));
-            }
+        } else if let Some(d) = duration
+            && t > d + END_TOLERANCE_S
+        {
+            out.push((
+                format!("{at}.{name}"),
+                format!("{t} s is past the end of the audio ({d:.4} s)"),
+            ));
         }
     }
     if start.is_finite() && end.is_finite() && end < start {

@@ -127,13 +127,13 @@ pub(super) fn retime_inline(text: &str, f: &mut impl FnMut(f64) -> f64) -> Strin
     let mut out = String::with_capacity(text.len());
     let mut copied = 0;
     for token in tokenize(text) {
-        if let Kind::Stamp(value) = &token.kind {
-            if let Ok(t) = read_timestamp(value) {
-                let at = token.at + 1; // after '<'
-                out.push_str(&text[copied..at]);
-                out.push_str(&format_timestamp(f(t)));
-                copied = at + value.len();
-            }
+        if let Kind::Stamp(value) = &token.kind
+            && let Ok(t) = read_timestamp(value)
+        {
+            let at = token.at + 1; // after '<'
+            out.push_str(&text[copied..at]);
+            out.push_str(&format_timestamp(f(t)));
+            copied = at + value.len();
         }
     }
     out.push_str(&text[copied..]);

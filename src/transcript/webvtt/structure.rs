@@ -199,19 +199,19 @@ impl Parser {
                 ),
             );
         }
-        if let Some((latest, at)) = self.latest_start {
-            if start < latest {
-                self.error(
-                    t,
-                    format!(
-                        "cue starts at {}, before the cue on line {} ({}): cues must be in \
+        if let Some((latest, at)) = self.latest_start
+            && start < latest
+        {
+            self.error(
+                t,
+                format!(
+                    "cue starts at {}, before the cue on line {} ({}): cues must be in \
                          start-time order",
-                        format_timestamp(start),
-                        at + 1,
-                        format_timestamp(latest)
-                    ),
-                );
-            }
+                    format_timestamp(start),
+                    at + 1,
+                    format_timestamp(latest)
+                ),
+            );
         }
         if self.latest_start.is_none_or(|(latest, _)| start >= latest) {
             self.latest_start = Some((start, t));
@@ -219,17 +219,17 @@ impl Parser {
         for m in self.check_settings(&settings) {
             self.error(t, m);
         }
-        if let Some(id) = &id {
-            if let Some(prev) = self.cue_ids.insert(id.clone(), first) {
-                self.error(
-                    first,
-                    format!(
-                        "cue identifier `{id}` is already used on line {}; identifiers must be \
+        if let Some(id) = &id
+            && let Some(prev) = self.cue_ids.insert(id.clone(), first)
+        {
+            self.error(
+                first,
+                format!(
+                    "cue identifier `{id}` is already used on line {}; identifiers must be \
                          unique",
-                        prev + 1
-                    ),
-                );
-            }
+                    prev + 1
+                ),
+            );
         }
         for (offset, m) in check_inline(&text, start, stop) {
             self.error(t + 1 + offset, m);
