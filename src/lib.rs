@@ -33,6 +33,7 @@ pub mod dsp;
 pub mod export;
 pub mod files;
 pub mod import;
+pub mod input_file;
 pub mod noise;
 pub mod recipe;
 pub mod remap;
