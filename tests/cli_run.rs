@@ -365,7 +365,10 @@ fn check_reports_every_problem_with_line_and_field() {
     assert_eq!(o.status.code(), Some(1));
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(
-        err.contains(&format!("{m} line 1: audio: sample 1234 is not finite")),
+        err.contains(&format!(
+            "{m} line 1: audio: {}: sample 1234 (at 0.077125 s) is not finite",
+            dir.join("nan.wav").display()
+        )),
         "{err}"
     );
     assert!(
