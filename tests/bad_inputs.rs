@@ -6,7 +6,7 @@
 //! exit code, and what the output must say. `{d}` in a command or fragment stands for the
 //! folder. The output searched is stdout, stderr and, after `run`, `out/rejects.jsonl`.
 //! Exit codes: 0 done, 1 the command could not finish (or found problems, for `check`),
-//! 2 the command line or recipe is wrong, 3 done with rejects (README, "Exit codes").
+//! 2 the command line or recipe is wrong, 3 done with rejects (README, "Exit status").
 
 mod common;
 
