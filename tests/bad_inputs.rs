@@ -432,6 +432,22 @@ fn cases() -> Vec<Case> {
             .manifest(GOOD)
             .at("none.toml", None, None)
             .says("cannot read"),
+        case("recipe: a FIFO", &["run", "{d}/pipe.toml", "-i", "{d}/in.jsonl", "-o", "{d}/out"], 2)
+            .manifest(GOOD)
+            .with("pipe.toml", Body::Fifo)
+            .at("pipe.toml", None, None)
+            .says("is a FIFO (named pipe), not a regular file"),
+        case("recipe: a folder", &["run", "{d}/sub", "-i", "{d}/in.jsonl", "-o", "{d}/out"], 2)
+            .manifest(GOOD)
+            .with("sub", Body::Dir)
+            .at("sub", None, None)
+            .says("is a folder, not a regular file"),
+        case("manifest with CRLF line ends accepted", &CHECK, 0)
+            .manifest(&format!("{GOOD}\r\n{}\r\n", GOOD.replace(r#""id":"a""#, r#""id":"b""#)))
+            .says("2 clips"),
+        case("manifest without a final line break accepted", &CHECK, 0)
+            .manifest(GOOD)
+            .says("1 clips"),
         // --- import: WebVTT, TSV and audio beside them ---
         case("import: folder missing", &["import", "{d}/nowhere"], 2)
             .at("nowhere", None, None)
