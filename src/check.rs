@@ -60,13 +60,14 @@ fn check_entry(manifest: &Manifest, entry: &Entry) -> (f64, Vec<Problem>) {
     };
     let clip = &entry.clip;
     // One pass without keeping the samples: a long session costs no more memory than a clip.
-    let scanned = audio::scan(&manifest.base().join(&clip.audio), ChannelPolicy::Mix);
+    let path = manifest.base().join(&clip.audio);
+    let scanned = audio::scan(&path, ChannelPolicy::Mix);
     let (duration, mut problems) = match scanned {
         Err(e) => (None, vec![problem("audio", e.to_string())]),
         Ok(a) => {
             let mut ps = Vec::new();
-            if let Some(i) = a.first_non_finite {
-                ps.push(problem("audio", format!("sample {i} is not finite")));
+            if let Err(e) = audio::usable(&path, &a, None) {
+                ps.push(problem("audio", e.to_string()));
             }
             if let Some(d) = clip.duration
                 && (d - a.duration()).abs() > DURATION_TOLERANCE_S

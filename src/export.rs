@@ -56,6 +56,9 @@ pub enum Outcome {
     Untimed,
     /// Not written: the file exists and replacing was not asked for.
     Exists(PathBuf),
+    /// Not written beside the audio, and why (the audio is missing or lies outside the
+    /// manifest's folder tree); `--out` names a folder instead.
+    NotBeside(String),
 }
 
 /// Write one clip's transcript.
@@ -72,7 +75,13 @@ pub fn export_clip(
     let Some(text) = format.render(clip) else {
         return Ok(Outcome::Untimed);
     };
-    let dest = destination(clip, base, out, format);
+    let dest = match out {
+        Some(_) => destination(clip, base, out, format),
+        None => match beside_audio(clip, base, format) {
+            Ok(dest) => dest,
+            Err(reason) => return Ok(Outcome::NotBeside(reason)),
+        },
+    };
     if dest.exists() && !replace {
         return Ok(Outcome::Exists(dest));
     }
@@ -81,4 +90,37 @@ pub fn export_clip(
     }
     write_atomically(&dest, |w| std::io::Write::write_all(w, text.as_bytes()))?;
     Ok(Outcome::Written(dest))
+}
+
+/// Where a clip's file goes beside its audio, when that is inside the folders the user
+/// named: the audio must exist and lie (links followed) inside the manifest's folder tree.
+/// Otherwise the reason, so that a manifest pointing anywhere cannot make `export` write
+/// anywhere.
+///
+/// # Errors
+/// Why the file is not written beside the audio.
+pub fn beside_audio(clip: &Clip, base: &Path, format: Format) -> Result<PathBuf, String> {
+    let audio = base.join(&clip.audio);
+    let real = match audio.canonicalize() {
+        Ok(real) if real.is_file() => real,
+        _ => {
+            return Err(format!(
+                "its audio {} does not exist, so there is nothing to write beside (use --out \
+                 to write into a folder)",
+                audio.display()
+            ));
+        }
+    };
+    let root = base
+        .canonicalize()
+        .map_err(|e| format!("{}: {e}", base.display()))?;
+    if !real.starts_with(&root) {
+        return Err(format!(
+            "its audio {} lies outside the manifest's folder {}; export writes beside audio \
+             only inside it (use --out to write into a folder)",
+            real.display(),
+            root.display()
+        ));
+    }
+    Ok(real.with_extension(format.extension()))
 }

@@ -190,11 +190,17 @@ fn import_pair(
             )]);
         }
     };
-    let text = std::fs::read_to_string(sidecar)
-        .map_err(|e| vec![whole_file(sidecar, format!("cannot read: {e}"))])?;
-    let duration = audio::scan(audio_path, channels)
-        .map_err(|e| vec![whole_file(audio_path, format!("cannot decode: {e}"))])?
-        .duration();
+    let text = crate::transcript::read_text(sidecar).map_err(|p| vec![p])?;
+    // The problem names the file; the audio error's own leading path is not repeated.
+    let audio_problem = |e: audio::AudioError| {
+        let text = e.to_string();
+        let prefix = format!("{}: ", audio_path.display());
+        let text = text.strip_prefix(&prefix).unwrap_or(&text).to_string();
+        vec![whole_file(audio_path, text)]
+    };
+    let scanned = audio::scan(audio_path, channels).map_err(audio_problem)?;
+    audio::usable(audio_path, &scanned, None).map_err(audio_problem)?;
+    let duration = scanned.duration();
     let audio_rel = relative_to(audio_path, manifest_dir);
     let mut clip = Clip {
         id,

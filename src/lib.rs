@@ -32,6 +32,7 @@ pub mod dsp;
 pub mod export;
 pub mod files;
 pub mod import;
+pub mod input_file;
 pub mod noise;
 pub mod outdir;
 pub mod recipe;

@@ -476,7 +476,7 @@ const TOP_KEYS: &[&str] = &[
 /// An unreadable file, TOML syntax, an unknown key, a missing or impossible value: the
 /// first problem found, with its line.
 pub fn load(path: &Path) -> Result<Plan, RecipeError> {
-    let text = std::fs::read_to_string(path).map_err(|e| RecipeError {
+    let text = crate::input_file::read_to_string(path).map_err(|e| RecipeError {
         path: path.to_path_buf(),
         line: None,
         message: format!("cannot read: {e}"),

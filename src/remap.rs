@@ -40,7 +40,7 @@ impl Annotation {
             field: String::new(),
             message,
         };
-        let text = std::fs::read_to_string(path).map_err(|e| vec![whole(e.to_string())])?;
+        let text = crate::transcript::read_text(path).map_err(|p| vec![p])?;
         match path.extension().and_then(|e| e.to_str()) {
             Some("tsv") => tsv::parse(path, &text).map(Self::Tsv),
             Some("vtt") => webvtt::parse(&text).map(Self::WebVtt).map_err(|errors| {
@@ -99,6 +99,52 @@ impl Annotation {
     }
 }
 
+/// The annotation files of source clip `source` under `labels`: `LABELS/<source>.<ext>`
+/// for each extension that exists. A source id is a path inside the labels folder (ids
+/// made by `import` hold `/` for subfolders), so one that is absolute or holds `..` or `.`
+/// parts is refused, as is a file that a link leads outside the folder.
+///
+/// # Errors
+/// Why the id cannot name a file inside `labels`.
+pub fn label_files(labels: &Path, source: &str) -> Result<Vec<PathBuf>, String> {
+    use std::path::Component;
+    let rel = Path::new(source);
+    let plain = !source.is_empty()
+        && !source.contains('\\')
+        && rel.components().all(|c| matches!(c, Component::Normal(_)))
+        && !source
+            .split('/')
+            .any(|part| part.is_empty() || part == "." || part == "..");
+    if !plain {
+        return Err(format!(
+            "source id `{source}` cannot name an annotation file: only ids that are plain \
+             relative paths (no leading `/`, no `.` or `..` parts) are looked up inside the \
+             labels folder"
+        ));
+    }
+    let root = labels
+        .canonicalize()
+        .map_err(|e| format!("{}: {e}", labels.display()))?;
+    let mut found = Vec::new();
+    for ext in EXTENSIONS {
+        let path = labels.join(format!("{source}.{ext}"));
+        if !path.is_file() {
+            continue;
+        }
+        match path.canonicalize() {
+            Ok(real) if real.starts_with(&root) => found.push(path),
+            _ => {
+                return Err(format!(
+                    "{}: a link leads outside the labels folder {}; not read",
+                    path.display(),
+                    labels.display()
+                ));
+            }
+        }
+    }
+    Ok(found)
+}
+
 /// What a remap did.
 #[derive(Debug, Default)]
 pub struct Report {
@@ -145,11 +191,19 @@ pub fn remap(manifest: &Manifest, labels: &Path, out: &Path) -> std::io::Result<
             continue;
         };
         if !sources.contains_key(&origin.source) {
-            let paths: Vec<PathBuf> = EXTENSIONS
-                .iter()
-                .map(|ext| labels.join(format!("{}.{ext}", origin.source)))
-                .filter(|p| p.is_file())
-                .collect();
+            let paths = match label_files(labels, &origin.source) {
+                Ok(paths) => paths,
+                Err(reason) => {
+                    report.problems.push(Problem {
+                        file: manifest.path.clone(),
+                        line: entry.line,
+                        field: "origin.source".into(),
+                        message: reason,
+                    });
+                    sources.insert(origin.source.clone(), Vec::new());
+                    continue;
+                }
+            };
             if paths.is_empty() {
                 report.missing.push(origin.source.clone());
             }

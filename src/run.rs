@@ -515,10 +515,9 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
         done.record = record_rel;
         return Ok(done);
     }
-    let source = audio::decode(&path, plan.channels).map_err(|e| reject("audio", e.to_string()))?;
-    if source.samples.is_empty() {
-        return Err(reject("audio", format!("{}: no samples", path.display())));
-    }
+    let source = audio::decode(&path, plan.channels)
+        .and_then(|a| audio::usable(&path, &audio::Scan::of(&a), Some(plan.rate)).map(|()| a))
+        .map_err(|e| reject("audio", e.to_string()))?;
     if let Some((field, reason)) = validate(clip, Some(source.duration())).into_iter().next() {
         return Err(reject(&field, reason));
     }

@@ -365,7 +365,10 @@ fn check_reports_every_problem_with_line_and_field() {
     assert_eq!(o.status.code(), Some(1));
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(
-        err.contains(&format!("{m} line 1: audio: sample 1234 is not finite")),
+        err.contains(&format!(
+            "{m} line 1: audio: {}: sample 1234 (at 0.077125 s) is not finite",
+            dir.join("nan.wav").display()
+        )),
         "{err}"
     );
     assert!(
@@ -414,7 +417,7 @@ fn an_interrupted_run_resumed_with_the_same_command_matches_a_clean_run() {
     let o = run(&out);
     assert!(o.status.success());
     let stdout = String::from_utf8_lossy(&o.stdout);
-    assert!(stdout.contains("kept    1 clips (3 takes"), "{stdout}");
+    assert!(stdout.contains("kept    1 clip (3 takes"), "{stdout}");
     assert!(stdout.contains("made    3 takes"), "{stdout}");
     let (got, want) = (files_under(&out), files_under(&clean));
     let names = |v: &[(String, Vec<u8>)]| v.iter().map(|f| f.0.clone()).collect::<Vec<_>>();

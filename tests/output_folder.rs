@@ -216,7 +216,7 @@ fn a_truncated_take_is_made_again_and_the_rest_kept() {
     let o = run(&recipe, &manifest, &out);
     assert_eq!(o.status.code(), Some(0));
     let stdout = text(&o.stdout);
-    assert!(stdout.contains("kept    1 clips (3 takes"), "{stdout}");
+    assert!(stdout.contains("kept    1 clip (3 takes"), "{stdout}");
     assert!(stdout.contains("made    3 takes"), "{stdout}");
     assert_eq!(
         std::fs::read(&take).unwrap(),

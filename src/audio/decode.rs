@@ -1,6 +1,5 @@
 //! Decoding with symphonia 0.6 into one mono `f32` buffer.
 
-use std::fs::File;
 use std::io::ErrorKind;
 use std::path::{Path, PathBuf};
 
@@ -85,6 +84,19 @@ pub struct Scan {
 }
 
 impl Scan {
+    /// What a scan of the file would have found, for audio already decoded.
+    pub fn of(audio: &Audio) -> Self {
+        Scan {
+            rate: audio.rate,
+            frames: audio.samples.len() as u64,
+            first_non_finite: audio
+                .samples
+                .iter()
+                .position(|s| !s.is_finite())
+                .map(|i| i as u64),
+        }
+    }
+
     /// Length in seconds.
     pub fn duration(&self) -> f64 {
         self.frames as f64 / f64::from(self.rate)
@@ -152,7 +164,7 @@ impl Stream {
             path: path.to_path_buf(),
             source,
         };
-        let file = File::open(path).map_err(io_err)?;
+        let file = crate::input_file::open(path).map_err(io_err)?;
         let mss = MediaSourceStream::new(Box::new(file), Default::default());
 
         let mut hint = Hint::new();

@@ -3,7 +3,7 @@
 //! Steps work on one channel: a multichannel file is reduced when it is decoded, by the
 //! recipe's [`ChannelPolicy`].
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
@@ -98,6 +98,40 @@ pub enum AudioError {
         /// Index of the first bad sample.
         index: usize,
     },
+    /// The decoded audio holds no samples at all.
+    #[error("{path}: no samples (the file holds no audio)")]
+    Empty {
+        /// The file.
+        path: PathBuf,
+    },
+    /// The decoded audio is too short to hold even one sample at the rate it is brought to.
+    #[error(
+        "{path}: {frames} frame{} at {rate} Hz is less than one sample at {target_rate} Hz",
+        if *frames == 1 { "" } else { "s" }
+    )]
+    TooShort {
+        /// The file.
+        path: PathBuf,
+        /// Frames decoded.
+        frames: u64,
+        /// The file's rate.
+        rate: u32,
+        /// The rate it was to be brought to.
+        target_rate: u32,
+    },
+    /// A decoded sample is NaN or infinite (float files can hold them): no step can work
+    /// on it, so the clip is refused before any.
+    #[error(
+        "{path}: sample {index} (at {time_s:.6} s) is not finite; the file holds NaN or infinite audio"
+    )]
+    BadSample {
+        /// The file.
+        path: PathBuf,
+        /// Index of the first bad sample (frame, after channel reduction).
+        index: u64,
+        /// Its time, seconds from the start.
+        time_s: f64,
+    },
     /// The WAV writer failed.
     #[error("{path}: cannot write: {reason}")]
     Write {
@@ -106,4 +140,39 @@ pub enum AudioError {
         /// What the writer said.
         reason: String,
     },
+}
+
+/// Whether decoded audio can go into the steps: it holds samples, keeps at least one when
+/// brought to `target_rate` (when given), and every sample is finite. What a decode found
+/// is described by `scan` ([`Scan::of`] for a decoded [`Audio`]); `path` names the file in
+/// the error. Every place that decodes a clip calls this before any DSP.
+///
+/// # Errors
+/// [`AudioError::Empty`], [`AudioError::TooShort`] or [`AudioError::BadSample`] (the first
+/// non-finite sample, with its index and time).
+pub fn usable(path: &Path, scan: &Scan, target_rate: Option<u32>) -> Result<(), AudioError> {
+    if scan.frames == 0 {
+        return Err(AudioError::Empty {
+            path: path.to_path_buf(),
+        });
+    }
+    if let Some(target_rate) = target_rate {
+        let frames = usize::try_from(scan.frames).unwrap_or(usize::MAX);
+        if crate::dsp::resample::output_len(frames, scan.rate, target_rate) == 0 {
+            return Err(AudioError::TooShort {
+                path: path.to_path_buf(),
+                frames: scan.frames,
+                rate: scan.rate,
+                target_rate,
+            });
+        }
+    }
+    if let Some(index) = scan.first_non_finite {
+        return Err(AudioError::BadSample {
+            path: path.to_path_buf(),
+            index,
+            time_s: index as f64 / f64::from(scan.rate),
+        });
+    }
+    Ok(())
 }

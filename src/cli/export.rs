@@ -35,6 +35,15 @@ pub fn export(manifest: &Path, formats: &[Format], out: Option<&Path>, replace: 
                 Ok(Outcome::Written(_)) => written += 1,
                 Ok(Outcome::Untimed) => untimed += 1,
                 Ok(Outcome::Exists(path)) => kept.push(path),
+                Ok(Outcome::NotBeside(reason)) => {
+                    eprintln!(
+                        "{} line {}: clip `{}`: not written: {reason}",
+                        manifest.display(),
+                        entry.line,
+                        entry.clip.id
+                    );
+                    failed += 1;
+                }
                 Err(e) => {
                     eprintln!(
                         "{} line {}: clip `{}`: cannot write: {e}",

@@ -9,6 +9,15 @@ use retake::import::import_folder;
 use retake::transcript::write_manifest;
 
 pub fn import(dir: &Path, manifest: Option<&Path>, channels: ChannelPolicy) -> ExitCode {
+    if !dir.is_dir() {
+        let what = if dir.exists() {
+            "is not a folder"
+        } else {
+            "the folder does not exist"
+        };
+        eprintln!("retake: {}: {what}; nothing imported", dir.display());
+        return ExitCode::from(2);
+    }
     let default = dir.join("manifest.jsonl");
     let manifest = manifest.unwrap_or(&default);
     let base = manifest.parent().filter(|p| !p.as_os_str().is_empty());

@@ -190,3 +190,12 @@ fn parse_fraction(s: &str) -> Result<f64, String> {
         _ => Err(format!("`{s}`: expected a fraction from 0 to 1")),
     }
 }
+
+/// `n` and the noun, plural unless `n` is 1: "1 take", "40 takes".
+pub fn count(n: usize, noun: &str) -> String {
+    if n == 1 {
+        format!("1 {noun}")
+    } else {
+        format!("{n} {noun}s")
+    }
+}

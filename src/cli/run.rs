@@ -85,14 +85,15 @@ fn print_summary(s: &Summary, out: &Path) {
     );
     if s.clips_resumed > 0 {
         println!(
-            "kept    {} clips ({} takes, {:.1} s of audio) finished by an earlier run of this \
-             recipe",
-            s.clips_resumed, s.takes_kept, s.seconds_out_kept
+            "kept    {} ({}, {:.1} s of audio) finished by an earlier run of this recipe",
+            super::count(s.clips_resumed, "clip"),
+            super::count(s.takes_kept, "take"),
+            s.seconds_out_kept
         );
     }
     println!(
-        "made    {} takes, {:.3} h of audio ({:.1} s) from {:.1} s of source",
-        s.takes_made(),
+        "made    {}, {:.3} h of audio ({:.1} s) from {:.1} s of source",
+        super::count(s.takes_made(), "take"),
         s.seconds_out_made() / 3600.0,
         s.seconds_out_made(),
         s.seconds_in - s.seconds_in_kept
@@ -109,9 +110,9 @@ fn print_summary(s: &Summary, out: &Path) {
         s.made_per_second()
     );
     println!(
-        "output  {} ({} takes, {:.3} h)",
+        "output  {} ({}, {:.3} h)",
         out.join(run::MANIFEST_NAME).display(),
-        s.takes,
+        super::count(s.takes, "take"),
         s.seconds_out / 3600.0
     );
     if s.rejected > 0 {

@@ -5,7 +5,7 @@ use super::labels::lines_of;
 use super::plan::{LeftOut, PlannedSlice, Reason, plan};
 use super::units::{Units, find_units};
 use super::window::{Window, frame_count};
-use super::{SLICES_DIR, SliceReject, SliceSpec, LeftOutRecord};
+use super::{LeftOutRecord, SLICES_DIR, SliceReject, SliceSpec};
 use crate::audio::Audio;
 use crate::files::file_stem;
 use crate::files::write_wav_atomically;

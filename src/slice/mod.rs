@@ -229,7 +229,9 @@ pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
     summary.rejected = rejects.len();
     summary.left_out = left_out.len();
     sync_dir(&dir).map_err(RunError::output(&dir))?;
-    write_atomically(&spec.out.join(MANIFEST_NAME), |w| write_manifest(w, &slices))?;
+    write_atomically(&spec.out.join(MANIFEST_NAME), |w| {
+        write_manifest(w, &slices)
+    })?;
     write_jsonl(&spec.out.join(LEFT_OUT_NAME), &left_out)?;
     write_jsonl(&spec.out.join(REJECTS_NAME), &rejects)?;
     let kept: std::collections::HashSet<&str> = slices.iter().map(|c| c.audio.as_str()).collect();

@@ -125,23 +125,42 @@ pub trait Step: Send + Sync + std::fmt::Debug {
 }
 
 /// Run one step on a take. The one place that refuses an empty take (no time map can
-/// describe a take of zero length), so steps need not check.
+/// describe a take of zero length) or one holding a NaN or infinite sample (no filter,
+/// resampler or level can work on it), so steps need not check; and the one place that
+/// refuses a step's non-finite result, naming the step.
 ///
 /// # Errors
-/// An empty take, or the step's own error.
+/// An empty or non-finite take, the step's own error, or a non-finite result.
 pub fn run_step(
     step: &dyn Step,
     audio: Audio,
     take: &TakeContext<'_>,
     rng: &mut TakeRng,
 ) -> Result<StepOutput, StepError> {
+    let fail = |reason: String| StepError {
+        step: step.name(),
+        reason,
+    };
     if audio.samples.is_empty() {
-        return Err(StepError {
-            step: step.name(),
-            reason: "the take is empty".into(),
-        });
+        return Err(fail("the take is empty".into()));
     }
-    step.apply(audio, take, rng)
+    if let Some(i) = first_non_finite(&audio) {
+        return Err(fail(format!(
+            "sample {i} of the take is not finite before this step"
+        )));
+    }
+    let done = step.apply(audio, take, rng)?;
+    if let Some(i) = first_non_finite(&done.audio) {
+        return Err(fail(format!(
+            "made a non-finite sample {i} (at {:.4} s)",
+            i as f64 / f64::from(done.audio.rate)
+        )));
+    }
+    Ok(done)
+}
+
+fn first_non_finite(audio: &Audio) -> Option<usize> {
+    audio.samples.iter().position(|s| !s.is_finite())
 }
 
 /// Reads a step's keys from its `[[step]]` table.

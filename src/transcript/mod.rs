@@ -4,9 +4,10 @@
 //! can be the input of another; takes carry an [`Origin`]. Unknown fields are kept and
 //! written back unchanged.
 
+pub mod json_error;
 pub mod tsv;
 
-use std::io::{BufRead, Write};
+use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
@@ -173,22 +174,30 @@ impl Manifest {
     }
 }
 
-/// Read a JSON Lines manifest. A bad line (empty, not JSON, wrong field type, duplicate id)
-/// becomes a [`Problem`] and reading goes on.
+/// Read a JSON Lines manifest. A bad line (empty, not UTF-8, not JSON, wrong field type,
+/// duplicate id) becomes a [`Problem`] and reading goes on. A UTF-8 byte-order mark at the
+/// start is skipped.
 ///
 /// # Errors
-/// Only when the file itself cannot be opened or read.
+/// When the file itself cannot be opened or read, is not a regular file, or is plainly not a
+/// JSON Lines manifest at all (a TOML recipe, one JSON document over many lines): then one
+/// error of kind [`std::io::ErrorKind::InvalidData`] says so, instead of one problem per
+/// line.
 pub fn read_manifest(path: &Path) -> std::io::Result<Manifest> {
-    let file = std::fs::File::open(path)?;
+    let bytes = crate::input_file::read(path)?;
     let mut manifest = Manifest {
         path: path.to_path_buf(),
         ..Manifest::default()
     };
     let mut seen = std::collections::HashMap::new();
-    for (i, text) in std::io::BufReader::new(file).lines().enumerate() {
+    let body = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(&bytes);
+    for (i, raw) in manifest_lines(body).enumerate() {
         let line = i + 1;
-        let text = text?;
-        match parse_clip(&text) {
+        let parsed = match std::str::from_utf8(raw) {
+            Ok(text) => parse_clip(text),
+            Err(e) => Err((String::new(), not_utf8(raw, &e))),
+        };
+        match parsed {
             Ok(clip) => {
                 if let Some(first) = seen.insert(clip.id.clone(), line) {
                     manifest.problems.push(Problem {
@@ -209,10 +218,97 @@ pub fn read_manifest(path: &Path) -> std::io::Result<Manifest> {
             }),
         }
     }
+    if manifest.entries.is_empty()
+        && !manifest.problems.is_empty()
+        && let Some(what) = not_json_lines(path, body)
+    {
+        return Err(std::io::Error::new(
+            std::io::ErrorKind::InvalidData,
+            format!("not a JSON Lines manifest: {what}"),
+        ));
+    }
     Ok(manifest)
 }
 
-/// Parse one manifest line into a clip, or (field path, message).
+/// The lines of a file as bytes, as [`std::io::BufRead::lines`] splits them (`\n` or `\r\n`, no
+/// empty line after a final line break).
+fn manifest_lines(body: &[u8]) -> impl Iterator<Item = &[u8]> {
+    let body = body.strip_suffix(b"\n").unwrap_or(body);
+    let empty = body.is_empty();
+    body.split(|&b| b == b'\n')
+        .map(|l| l.strip_suffix(b"\r").unwrap_or(l))
+        .filter(move |_| !empty)
+}
+
+/// A transcript or annotation file as text: regular files only, a UTF-8 byte-order mark
+/// dropped, and bytes that are not UTF-8 reported with their line and column.
+///
+/// # Errors
+/// One [`Problem`] naming the file (and the line, for bad bytes).
+pub fn read_text(path: &Path) -> Result<String, Problem> {
+    let problem = |line: usize, message: String| Problem {
+        file: path.to_path_buf(),
+        line,
+        field: String::new(),
+        message,
+    };
+    let mut bytes =
+        crate::input_file::read(path).map_err(|e| problem(0, format!("cannot read: {e}")))?;
+    if bytes.starts_with(b"\xEF\xBB\xBF") {
+        bytes.drain(..3);
+    }
+    String::from_utf8(bytes).map_err(|e| {
+        let bytes = e.as_bytes();
+        let at = e.utf8_error().valid_up_to();
+        let start = bytes[..at]
+            .iter()
+            .rposition(|&b| b == b'\n')
+            .map_or(0, |i| i + 1);
+        let line = bytes[..at].iter().filter(|&&b| b == b'\n').count() + 1;
+        let raw = &bytes[start..];
+        let end = raw.iter().position(|&b| b == b'\n').unwrap_or(raw.len());
+        let raw = &raw[..end];
+        let e = std::str::from_utf8(raw).expect_err("the bad byte is on this line");
+        problem(line, not_utf8(raw, &e))
+    })
+}
+
+/// Where a line stops being UTF-8, in a person's terms.
+fn not_utf8(raw: &[u8], e: &std::str::Utf8Error) -> String {
+    let at = e.valid_up_to();
+    let column = String::from_utf8_lossy(&raw[..at]).chars().count() + 1;
+    format!(
+        "not UTF-8 text: byte 0x{:02X} at column {column} (save the file as UTF-8)",
+        raw[at]
+    )
+}
+
+/// Why a file none of whose lines is a clip is not a manifest at all, when that is plain.
+fn not_json_lines(path: &Path, body: &[u8]) -> Option<String> {
+    let text = std::str::from_utf8(body).ok()?;
+    let toml_name = path
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("toml"));
+    let toml_table = text.parse::<toml::Table>().is_ok_and(|t| !t.is_empty());
+    if toml_name || toml_table {
+        return Some(
+            "it is a TOML file (a recipe?); `--input` takes the JSON Lines manifest, one clip \
+             per line, and the recipe comes first"
+                .into(),
+        );
+    }
+    if text.lines().count() > 1 && serde_json::from_str::<Value>(text).is_ok() {
+        return Some(
+            "it is one JSON document over several lines; a manifest holds one clip per line \
+             (JSON Lines)"
+                .into(),
+        );
+    }
+    None
+}
+
+/// Parse one manifest line into a clip, or (field path, message). Messages are in the
+/// manifest's terms (see [`json_error`]), not the JSON parser's.
 pub fn parse_clip(text: &str) -> Result<Clip, (String, String)> {
     if text.trim().is_empty() {
         return Err((
@@ -220,23 +316,27 @@ pub fn parse_clip(text: &str) -> Result<Clip, (String, String)> {
             "empty line (one clip per line, no blank lines)".into(),
         ));
     }
+    let first = text.trim_start().chars().next().unwrap_or(' ');
+    if first != '{' {
+        let found = match first {
+            '[' => "a list",
+            '"' => "text",
+            '0'..='9' | '-' => "a number",
+            't' | 'f' | 'n' => "a bare word",
+            _ => "something that is not JSON",
+        };
+        return Err((
+            String::new(),
+            format!("a clip must be a JSON object `{{...}}`, found {found}"),
+        ));
+    }
     let mut de = serde_json::Deserializer::from_str(text);
     let clip: Clip = serde_path_to_error::deserialize(&mut de).map_err(|e| {
-        let field = e.path().to_string();
-        let field = if field == "." { String::new() } else { field };
-        (field, strip_position(&e.into_inner().to_string()))
+        let path = e.path().to_string();
+        json_error::explain(&path, e.inner())
     })?;
-    de.end()
-        .map_err(|e| (String::new(), strip_position(&e.to_string())))?;
+    de.end().map_err(|e| json_error::explain(".", &e))?;
     Ok(clip)
-}
-
-/// serde_json appends "at line 1 column 57"; the manifest line is already named.
-fn strip_position(message: &str) -> String {
-    match message.rfind(" at line ") {
-        Some(i) => message[..i].to_string(),
-        None => message.to_string(),
-    }
 }
 
 /// Write clips as JSON Lines.
@@ -275,7 +375,7 @@ pub fn validate(clip: &Clip, duration: Option<f64>) -> Vec<(String, String)> {
     };
     for (li, line) in lines.iter().enumerate() {
         let at = format!("lines[{li}]");
-        check_span(&mut out, &at, line.start, line.end, duration);
+        check_span(&mut out, &at, line.start, line.end, duration, &clip.audio);
         if li > 0 && line.start < lines[li - 1].start {
             out.push((
                 format!("{at}.start"),
@@ -288,7 +388,7 @@ pub fn validate(clip: &Clip, duration: Option<f64>) -> Vec<(String, String)> {
         }
         for (wi, word) in line.words.iter().enumerate() {
             let wat = format!("{at}.words[{wi}]");
-            check_span(&mut out, &wat, word.start, word.end, duration);
+            check_span(&mut out, &wat, word.start, word.end, duration, &clip.audio);
             if word.start < line.start - END_TOLERANCE_S || word.end > line.end + END_TOLERANCE_S {
                 out.push((
                     wat.clone(),
@@ -323,6 +423,7 @@ fn check_span(
     start: f64,
     end: f64,
     duration: Option<f64>,
+    audio: &str,
 ) {
     for (name, t) in [("start", start), ("end", end)] {
         if !t.is_finite() {
@@ -334,7 +435,7 @@ fn check_span(
         {
             out.push((
                 format!("{at}.{name}"),
-                format!("{t} s is past the end of the audio ({d:.4} s)"),
+                format!("{t} s is past the end of the audio {audio} ({d:.4} s)"),
             ));
         }
     }
@@ -449,7 +550,10 @@ mod tests {
         let bad = GOOD.replace(r#""end":0.9"#, r#""end":"late""#);
         let (field, msg) = parse_clip(&bad).unwrap_err();
         assert_eq!(field, "lines[0].words[0].end");
-        assert!(msg.contains("invalid type"), "{msg}");
+        assert_eq!(
+            msg,
+            "`end` must be a number of seconds, found the text \"late\""
+        );
     }
 
     #[test]

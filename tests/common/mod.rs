@@ -277,3 +277,16 @@ pub fn outside_minus_inside_db(x: &[f32], rate: u32, words: &[(f64, f64)]) -> Ve
         })
         .collect()
 }
+
+/// A plan at `rate` Hz with the one step `step` (its `[[step]]` keys, `do` included),
+/// through the recipe loader; paths in the step are relative to `dir`.
+///
+/// # Panics
+/// When the recipe is refused.
+pub fn one_step_at(dir: &Path, rate: u32, step: &str) -> retake::recipe::Plan {
+    retake::recipe::parse(
+        &dir.join("test.toml"),
+        &format!("takes = 1\nrate = {rate}\n[[step]]\n{step}\n"),
+    )
+    .unwrap_or_else(|e| panic!("{e}"))
+}
