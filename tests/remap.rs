@@ -246,4 +246,26 @@ fn missing_annotations_and_non_takes_are_listed() {
     let (code, err) = remap(tmp.path(), "out/manifest.jsonl");
     assert_eq!(code, Some(3), "{err}");
     assert!(err.contains("bursts.vtt line 3:"), "{err}");
+    // A cue setting the WebVTT parser ignores (§6.3: `align` takes start, center, end, left
+    // or right) is a warning: the file is carried over, setting and all, and the command
+    // succeeds.
+    std::fs::write(
+        tmp.path().join("labels/yard/bursts.vtt"),
+        "WEBVTT\n\n00:00.300 --> 00:00.320 align:middle\nbeep\n",
+    )
+    .unwrap();
+    let (code, err) = remap(tmp.path(), "out/manifest.jsonl");
+    assert_eq!(code, Some(0), "{err}");
+    assert!(
+        err.contains("warning: ") && err.contains("bursts.vtt line 3:"),
+        "{err}"
+    );
+    let carried: Vec<String> = std::fs::read_dir(tmp.path().join("moved"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|x| x == "vtt"))
+        .map(|p| std::fs::read_to_string(p).unwrap())
+        .collect();
+    assert_eq!(carried.len(), 1);
+    assert!(carried[0].contains(" align:middle\nbeep"), "{}", carried[0]);
 }
