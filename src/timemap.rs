@@ -199,12 +199,33 @@ struct Columns {
     take: Vec<f64>,
 }
 
-/// What a manifest may hold: the columns, or the pairs earlier versions wrote.
-#[derive(Deserialize)]
-#[serde(untagged)]
+/// What a manifest may hold: the columns (a JSON object), or the pairs earlier versions
+/// wrote (a JSON array). Told apart by the JSON type alone, so a two-knot list of pairs is
+/// never taken for two columns.
 enum Written {
     Columns(Columns),
     Pairs(Vec<[f64; 2]>),
+}
+
+impl<'de> Deserialize<'de> for Written {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct Shape;
+        impl<'de> serde::de::Visitor<'de> for Shape {
+            type Value = Written;
+            fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.write_str(r#"a time map: {"source": [seconds...], "take": [seconds...]}"#)
+            }
+            fn visit_map<A: serde::de::MapAccess<'de>>(self, map: A) -> Result<Written, A::Error> {
+                Columns::deserialize(serde::de::value::MapAccessDeserializer::new(map))
+                    .map(Written::Columns)
+            }
+            fn visit_seq<A: serde::de::SeqAccess<'de>>(self, seq: A) -> Result<Written, A::Error> {
+                Vec::<[f64; 2]>::deserialize(serde::de::value::SeqAccessDeserializer::new(seq))
+                    .map(Written::Pairs)
+            }
+        }
+        d.deserialize_any(Shape)
+    }
 }
 
 impl TryFrom<Written> for TimeMap {
@@ -297,6 +318,9 @@ mod tests {
         assert_eq!(back, m);
         let old: TimeMap = serde_json::from_str("[[0.0,0.1],[1.0,1.1],[2.0,1.6]]").unwrap();
         assert_eq!(old, m);
+        // Two pairs are two knots, never two columns.
+        let two: TimeMap = serde_json::from_str("[[0.0,1.0],[2.0,3.0]]").unwrap();
+        assert_eq!(two.knots(), [(0.0, 1.0), (2.0, 3.0)]);
         assert!(serde_json::from_str::<TimeMap>("[[0.0,0.0]]").is_err());
         assert!(serde_json::from_str::<TimeMap>(r#"{"source":[0.0,1.0],"take":[0.0]}"#).is_err());
         assert!(
