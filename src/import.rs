@@ -50,7 +50,13 @@ pub struct Import {
     pub clips: Vec<Clip>,
     /// Everything that did not, each naming its file (and line where there is one).
     pub problems: Vec<Problem>,
+    /// Findings in files that were imported all the same (WebVTT cue settings ignored),
+    /// each naming its file and line.
+    pub warnings: Vec<Problem>,
 }
+
+/// One clip that came through, with the warnings its transcript gave.
+type Imported = (Clip, Vec<Problem>);
 
 /// The files of one stem.
 #[derive(Debug, Default)]
@@ -89,14 +95,17 @@ pub fn import_folder(
             pairs.entry(id).or_default().sidecars.push((path, kind));
         }
     }
-    let results: Vec<Result<Clip, Vec<Problem>>> = pairs
+    let results: Vec<Result<Imported, Vec<Problem>>> = pairs
         .into_par_iter()
         .map(|(id, pair)| import_pair(id, pair, manifest_dir, channels))
         .collect();
     let mut import = Import::default();
     for r in results {
         match r {
-            Ok(clip) => import.clips.push(clip),
+            Ok((clip, warnings)) => {
+                import.clips.push(clip);
+                import.warnings.extend(warnings);
+            }
             Err(p) => import.problems.extend(p),
         }
     }
@@ -135,7 +144,7 @@ fn import_pair(
     pair: Pair,
     manifest_dir: &Path,
     channels: ChannelPolicy,
-) -> Result<Clip, Vec<Problem>> {
+) -> Result<Imported, Vec<Problem>> {
     let names = |paths: &mut dyn Iterator<Item = &PathBuf>| {
         paths
             .map(|p| {
@@ -220,6 +229,7 @@ fn import_pair(
             message: format!("{t} s is past the end of its audio {audio_name} ({duration:.3} s)"),
         })
     };
+    let mut warnings = Vec::new();
     let lines: Vec<Line> = match kind {
         Sidecar::Text => {
             let t = text.split_whitespace().collect::<Vec<_>>().join(" ");
@@ -227,7 +237,7 @@ fn import_pair(
                 return Err(vec![whole_file(sidecar, "empty transcript".into())]);
             }
             clip.text = Some(t);
-            return Ok(clip);
+            return Ok((clip, Vec::new()));
         }
         Sidecar::Tsv => {
             let table = tsv::parse(sidecar, &text)?;
@@ -248,13 +258,16 @@ fn import_pair(
                     return Err(late);
                 }
             }
-            webvtt::read_lines(sidecar, &text)?
+            let read = webvtt::read_transcript(sidecar, &text)?;
+            warnings = read.warnings;
+            read.lines
         }
     };
     if lines.is_empty() {
         return Err(vec![whole_file(sidecar, "no timed lines in it".into())]);
     }
     clip.lines = Some(lines);
+    clip.derive_text();
     let left: Vec<Problem> = validate(&clip, Some(duration))
         .into_iter()
         .map(|(field, message)| Problem {
@@ -264,7 +277,11 @@ fn import_pair(
             message,
         })
         .collect();
-    if left.is_empty() { Ok(clip) } else { Err(left) }
+    if left.is_empty() {
+        Ok((clip, warnings))
+    } else {
+        Err(left)
+    }
 }
 
 /// `path` as written relative to `base` when both resolve, with `/` separators; else

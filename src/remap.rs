@@ -158,6 +158,9 @@ pub struct Report {
     pub collapsed: usize,
     /// Bad annotation files and manifest lines that are not takes.
     pub problems: Vec<Problem>,
+    /// Findings in annotation files that were carried over all the same (WebVTT cue
+    /// settings a player would ignore), each naming its file and line.
+    pub warnings: Vec<Problem>,
 }
 
 /// Carry the annotations in `labels` to every take of `manifest`, writing
@@ -210,7 +213,17 @@ pub fn remap(manifest: &Manifest, labels: &Path, out: &Path) -> std::io::Result<
             let mut found = Vec::new();
             for path in paths {
                 match Annotation::read(&path) {
-                    Ok(a) => found.push(a),
+                    Ok(a) => {
+                        if let Annotation::WebVtt(doc) = &a {
+                            report.warnings.extend(doc.warnings.iter().map(|w| Problem {
+                                file: path.clone(),
+                                line: w.line,
+                                field: String::new(),
+                                message: w.message.clone(),
+                            }));
+                        }
+                        found.push(a);
+                    }
                     Err(p) => report.problems.extend(p),
                 }
             }

@@ -703,6 +703,7 @@ fn make_take(
         ..clip.clone()
     };
     out.duration = Some(duration);
+    out.derive_text();
     if let Some((field, reason)) = transcript::validate(&out, Some(duration))
         .into_iter()
         .next()

@@ -32,13 +32,20 @@ fn splitmix64(mut z: u64) -> u64 {
     z ^ (z >> 31)
 }
 
-/// The seed of one take: a stable hash of the recipe seed, the clip id and the take index.
+/// Take seeds are kept below 2^53 so every JSON reader holds them exactly: JavaScript and
+/// pandas/pyarrow read JSON integers as doubles or signed 64-bit, and doubles hold integers
+/// exactly only up to 2^53 (ECMA-262 `Number.MAX_SAFE_INTEGER` is 2^53 - 1).
+pub const TAKE_SEED_BITS: u32 = 53;
+
+/// The seed of one take: a stable hash of the recipe seed, the clip id and the take index,
+/// its low [`TAKE_SEED_BITS`] bits kept (the hash's bits are all equally mixed, so 53 of
+/// them seed a ChaCha stream as well as 64).
 pub fn take_seed(recipe_seed: u64, clip_id: &str, take: u32) -> u64 {
     stable_hash(&[
         &recipe_seed.to_le_bytes(),
         clip_id.as_bytes(),
         &take.to_le_bytes(),
-    ])
+    ]) & ((1u64 << TAKE_SEED_BITS) - 1)
 }
 
 /// The seed of one step's stream inside a take.
@@ -105,6 +112,21 @@ mod tests {
         assert_ne!(base, take_seed(7, "dock-02", 0));
         assert_ne!(base, take_seed(7, "dock-01", 1));
         assert_eq!(base, take_seed(7, "dock-01", 0));
+    }
+
+    #[test]
+    fn take_seeds_are_exact_as_doubles() {
+        // 2^53 - 1 is the largest integer every double-based JSON reader holds exactly
+        // (ECMA-262 Number.MAX_SAFE_INTEGER). Over many seeds the top bit below the mask is
+        // used, so the mask is not also throwing away entropy.
+        let mut top = false;
+        for k in 0..2000 {
+            let s = take_seed(2026, "pick-a-001", k);
+            assert!(s < 1 << 53, "{s}");
+            assert_eq!(s as f64 as u64, s);
+            top |= s >= 1 << 52;
+        }
+        assert!(top);
     }
 
     #[test]

@@ -15,8 +15,13 @@ const KNOT_EPS: f64 = 1e-12;
 /// non-decreasing (a flat piece means that stretch of source was cut out of the take), all
 /// values finite. Outside its first and last knot the map holds its end values: a source
 /// time before the domain maps to the first take time, after it to the last.
+///
+/// In JSON it is two number lists of equal length, `{"source": [...], "take": [...]}`: a
+/// column of source times and a column of take times, which table readers (pyarrow,
+/// Hugging Face `datasets`, pandas) turn into plain float arrays. A list of `[source, take]`
+/// pairs, as older runs wrote, is still read.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-#[serde(try_from = "Vec<[f64; 2]>", into = "Vec<[f64; 2]>")]
+#[serde(try_from = "Written", into = "Columns")]
 pub struct TimeMap {
     knots: Vec<(f64, f64)>,
 }
@@ -36,6 +41,9 @@ pub enum TimeMapError {
     /// Take times must not decrease.
     #[error("knot {0}: take time decreases")]
     TakeDecreasing(usize),
+    /// The `source` and `take` lists of the JSON form differ in length.
+    #[error("`source` has {0} times but `take` has {1}; they pair up one to one")]
+    ColumnLengths(usize, usize),
 }
 
 impl TimeMap {
@@ -183,16 +191,63 @@ impl TimeMap {
     }
 }
 
-impl TryFrom<Vec<[f64; 2]>> for TimeMap {
-    type Error = TimeMapError;
-    fn try_from(v: Vec<[f64; 2]>) -> Result<Self, Self::Error> {
-        TimeMap::from_knots(v.into_iter().map(|[x, y]| (x, y)).collect())
+/// The JSON form: knot source times and take times as two columns.
+#[derive(Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct Columns {
+    source: Vec<f64>,
+    take: Vec<f64>,
+}
+
+/// What a manifest may hold: the columns (a JSON object), or the pairs earlier versions
+/// wrote (a JSON array). Told apart by the JSON type alone, so a two-knot list of pairs is
+/// never taken for two columns.
+enum Written {
+    Columns(Columns),
+    Pairs(Vec<[f64; 2]>),
+}
+
+impl<'de> Deserialize<'de> for Written {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct Shape;
+        impl<'de> serde::de::Visitor<'de> for Shape {
+            type Value = Written;
+            fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.write_str(r#"a time map: {"source": [seconds...], "take": [seconds...]}"#)
+            }
+            fn visit_map<A: serde::de::MapAccess<'de>>(self, map: A) -> Result<Written, A::Error> {
+                Columns::deserialize(serde::de::value::MapAccessDeserializer::new(map))
+                    .map(Written::Columns)
+            }
+            fn visit_seq<A: serde::de::SeqAccess<'de>>(self, seq: A) -> Result<Written, A::Error> {
+                Vec::<[f64; 2]>::deserialize(serde::de::value::SeqAccessDeserializer::new(seq))
+                    .map(Written::Pairs)
+            }
+        }
+        d.deserialize_any(Shape)
     }
 }
 
-impl From<TimeMap> for Vec<[f64; 2]> {
+impl TryFrom<Written> for TimeMap {
+    type Error = TimeMapError;
+    fn try_from(w: Written) -> Result<Self, Self::Error> {
+        let knots = match w {
+            Written::Columns(Columns { source, take }) => {
+                if source.len() != take.len() {
+                    return Err(TimeMapError::ColumnLengths(source.len(), take.len()));
+                }
+                source.into_iter().zip(take).collect()
+            }
+            Written::Pairs(pairs) => pairs.into_iter().map(|[x, y]| (x, y)).collect(),
+        };
+        TimeMap::from_knots(knots)
+    }
+}
+
+impl From<TimeMap> for Columns {
     fn from(m: TimeMap) -> Self {
-        m.knots.into_iter().map(|(x, y)| [x, y]).collect()
+        let (source, take) = m.knots.into_iter().unzip();
+        Columns { source, take }
     }
 }
 
@@ -255,12 +310,21 @@ mod tests {
     }
 
     #[test]
-    fn serialises_as_pairs() {
-        let m = TimeMap::linear(2.0, 1.0);
+    fn serialises_as_two_columns_and_reads_old_pairs() {
+        let m = TimeMap::from_knots(vec![(0.0, 0.1), (1.0, 1.1), (2.0, 1.6)]).unwrap();
         let s = serde_json::to_string(&m).unwrap();
-        assert_eq!(s, "[[0.0,0.0],[2.0,1.0]]");
+        assert_eq!(s, r#"{"source":[0.0,1.0,2.0],"take":[0.1,1.1,1.6]}"#);
         let back: TimeMap = serde_json::from_str(&s).unwrap();
         assert_eq!(back, m);
+        let old: TimeMap = serde_json::from_str("[[0.0,0.1],[1.0,1.1],[2.0,1.6]]").unwrap();
+        assert_eq!(old, m);
+        // Two pairs are two knots, never two columns.
+        let two: TimeMap = serde_json::from_str("[[0.0,1.0],[2.0,3.0]]").unwrap();
+        assert_eq!(two.knots(), [(0.0, 1.0), (2.0, 3.0)]);
         assert!(serde_json::from_str::<TimeMap>("[[0.0,0.0]]").is_err());
+        assert!(serde_json::from_str::<TimeMap>(r#"{"source":[0.0,1.0],"take":[0.0]}"#).is_err());
+        assert!(
+            serde_json::from_str::<TimeMap>(r#"{"source":[1.0,0.0],"take":[0.0,1.0]}"#).is_err()
+        );
     }
 }

@@ -176,3 +176,51 @@ fn bad_sidecars_are_listed_and_good_clips_come_through() {
     let ids: Vec<&str> = written.iter().map(|c| c["id"].as_str().unwrap()).collect();
     assert_eq!(ids, ["pick-a-001"]);
 }
+
+#[test]
+fn import_reads_a_webvtt_file_with_ignored_settings_and_prints_the_warning() {
+    // W3C WebVTT §6.3 "Parse the WebVTT cue settings": `align:middle` matches none of the
+    // align values and an unknown name matches no substep, so the parser skips both settings
+    // and keeps the cue. The import does the same and says so, naming the file and line.
+    let tmp = tempfile::tempdir().unwrap();
+    let site = tmp.path().join("site");
+    copy_audio(&site);
+    for e in std::fs::read_dir(&site).unwrap() {
+        let p = e.unwrap().path();
+        if p.file_stem().unwrap() != "pick-a-001" {
+            std::fs::remove_file(p).unwrap();
+        }
+    }
+    std::fs::write(
+        site.join("pick-a-001.vtt"),
+        "WEBVTT\n\n00:00.237 --> 00:02.919 align:middle\n<v astrid>aisle fourteen bay three \
+         confirm\n\n00:03.500 --> 00:05.267 colour:red size:50%\ncheck digit &eacute;five\n",
+    )
+    .unwrap();
+    let o = retake(&["import", site.to_str().unwrap()]);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(0), "{err}");
+    let vtt = site.join("pick-a-001.vtt");
+    let warnings: Vec<&str> = err.lines().filter(|l| l.starts_with("warning: ")).collect();
+    assert_eq!(warnings.len(), 2, "{err}");
+    assert!(
+        warnings[0].contains(&format!("{} line 3:", vtt.display()))
+            && warnings[0].contains("middle"),
+        "{err}"
+    );
+    assert!(
+        warnings[1].contains(&format!("{} line 6:", vtt.display()))
+            && warnings[1].contains("colour"),
+        "{err}"
+    );
+    let clips = read_jsonl(&site.join("manifest.jsonl"));
+    assert_eq!(clips.len(), 1);
+    let lines = clips[0]["lines"].as_array().unwrap();
+    assert_eq!(lines.len(), 2);
+    // The named reference is decoded (HTML standard: &eacute; is U+00E9).
+    assert_eq!(lines[1]["text"], "check digit éfive");
+    assert_eq!(
+        clips[0]["text"],
+        "aisle fourteen bay three confirm check digit éfive"
+    );
+}

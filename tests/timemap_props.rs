@@ -92,3 +92,28 @@ proptest! {
         prop_assert!(close(inv.apply(m.apply(t)), t));
     }
 }
+
+proptest! {
+    /// The manifest form (two columns) reads back bit for bit, and the older list of pairs
+    /// reads as the same map; columns of different lengths never read.
+    #[test]
+    fn json_columns_round_trip_and_pairs_read_the_same(
+        m in (0.5f64..30.0).prop_flat_map(arb_map),
+        drop in 0usize..2,
+    ) {
+        let text = serde_json::to_string(&m).unwrap();
+        let value: serde_json::Value = serde_json::from_str(&text).unwrap();
+        let (source, take) = (value["source"].as_array().unwrap(), value["take"].as_array().unwrap());
+        prop_assert_eq!(source.len(), m.knots().len());
+        prop_assert_eq!(take.len(), m.knots().len());
+        let back: TimeMap = serde_json::from_str(&text).unwrap();
+        prop_assert_eq!(&back, &m);
+        let pairs: Vec<[f64; 2]> = m.knots().iter().map(|&(x, y)| [x, y]).collect();
+        let old: TimeMap = serde_json::from_str(&serde_json::to_string(&pairs).unwrap()).unwrap();
+        prop_assert_eq!(&old, &m);
+        let mut short = value.clone();
+        let key = if drop == 0 { "source" } else { "take" };
+        short[key].as_array_mut().unwrap().pop();
+        prop_assert!(serde_json::from_value::<TimeMap>(short).is_err());
+    }
+}

@@ -36,6 +36,9 @@ pub fn import(dir: &Path, manifest: Option<&Path>, channels: ChannelPolicy) -> E
     for p in &found.problems {
         eprintln!("{p}");
     }
+    for w in &found.warnings {
+        eprintln!("warning: {w}");
+    }
     if found.clips.is_empty() {
         eprintln!(
             "retake: {}: no recording with a usable transcript; nothing written",

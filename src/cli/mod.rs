@@ -2,6 +2,7 @@
 
 mod bank;
 mod check;
+mod demo;
 mod export;
 mod import;
 mod remap;
@@ -114,6 +115,9 @@ enum Command {
         replace: bool,
     },
     /// Run the bundled recipe on the bundled demo clips (a cold-store warehouse).
+    ///
+    /// The demo set is inside the binary: it is written to OUT/demo_audio/ first, then run
+    /// into OUT.
     Demo {
         /// Output folder.
         #[arg(long, short, default_value = "retake-demo")]
@@ -154,16 +158,7 @@ pub fn main() -> ExitCode {
             labels,
             out,
         } => remap::run(&manifest, &labels, &out),
-        Command::Demo { out, threads } => {
-            let demo = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo_audio");
-            run::run(
-                &demo.join("recipe.toml"),
-                &demo.join("manifest.jsonl"),
-                &out,
-                threads,
-                None,
-            )
-        }
+        Command::Demo { out, threads } => demo::demo(&out, threads),
     }
 }
 

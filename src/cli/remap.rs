@@ -28,6 +28,9 @@ pub fn run(manifest: &Path, labels: &Path, out: &Path) -> ExitCode {
     for p in &report.problems {
         eprintln!("{p}");
     }
+    for w in &report.warnings {
+        eprintln!("warning: {w}");
+    }
     for id in &report.missing {
         eprintln!(
             "{}: no annotation for source clip `{id}` (looked for {id}.tsv and {id}.vtt)",

@@ -156,19 +156,17 @@ fn slice_record(
             "end": end,
         }),
     );
-    Clip {
+    let mut record = Clip {
         id: format!("{}.c{k}", clip.id),
         audio: rel.to_string(),
-        text: if lines.is_none() {
-            clip.text.clone()
-        } else {
-            None
-        },
+        text: clip.text.clone(),
         lines,
         duration: Some(duration),
         origin: None,
         extra,
-    }
+    };
+    record.derive_text();
+    record
 }
 
 /// A left-out stretch as reported, and its seconds of speech.

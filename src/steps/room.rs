@@ -3,7 +3,8 @@
 //! timing kept on the words.
 //!
 //! Convolution delays the speech by the direct-path delay. The step finds the direct path
-//! (the response's largest peak) and either trims that delay from the output (`align =
+//! (from the geometry for a simulated room, the response's largest peak for a measured one)
+//! and either trims that delay from the output (`align =
 //! "trim"`: timings do not move) or keeps it and shifts every timing by it (`align =
 //! "shift"`). The reverberant tail past the input's end is cut (`tail = "cut"`, the default)
 //! or kept (`tail = "keep"`); timings stay inside the audio either way.
@@ -20,6 +21,7 @@ use crate::dsp::rt60::rt60;
 use crate::noise::load_bank;
 use crate::recipe::{Draw, Params, RecipeError};
 use crate::room::absorption::{alpha_for_rt60_eyring, alpha_for_rt60_sabine};
+use crate::room::ism::direct_delay_s;
 use crate::room::{RoomCache, Shoebox, impulse_response, place};
 use crate::seed::TakeRng;
 use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};
@@ -261,6 +263,10 @@ fn direct_and_reverberant(h: &[f32], peak_at: usize, rate: u32) -> (f64, f64) {
     (e(&h[a..b]), e(&h[..a]) + e(&h[b..]))
 }
 
+/// A response, its RT60 when known, and the sample of its direct path when known (simulated
+/// rooms; for a measured one it is taken to be the largest peak).
+type Response = (Arc<Vec<f32>>, Option<f64>, Option<usize>);
+
 fn argmax_abs(h: &[f32]) -> usize {
     let mut best = 0;
     for (i, &s) in h.iter().enumerate() {
@@ -278,7 +284,7 @@ impl Room {
         rng: &mut TakeRng,
         rate: u32,
         out: &mut StepOutput,
-    ) -> Result<(Arc<Vec<f32>>, Option<f64>), StepError> {
+    ) -> Result<Response, StepError> {
         match &self.source {
             Source::Measured(irs) => {
                 let ir = &irs[rng.index(irs.len())];
@@ -286,7 +292,7 @@ impl Room {
                     .insert("irs".into(), Value::from(self.folder.clone()));
                 out.drawn
                     .insert("file".into(), Value::from(ir.rel_path.clone()));
-                Ok((ir.samples.clone(), ir.rt60_s))
+                Ok((ir.samples.clone(), ir.rt60_s, None))
             }
             Source::Simulated(sim) => {
                 let dims = [
@@ -338,7 +344,10 @@ impl Room {
                     })
                     .map_err(err)?;
                 let t60 = rt60(&h, rate);
-                Ok((h, t60))
+                // The direct path's sample is known from the geometry; a reflection can sum
+                // to a larger peak when the source sits near walls.
+                let direct = (direct_delay_s(&at, SPEED_OF_SOUND) * f64::from(rate)).round();
+                Ok((h, t60, Some(direct as usize)))
             }
         }
     }
@@ -373,9 +382,11 @@ impl Step for Room {
             TimeMap::identity(d_in),
         );
         let drr_draw = self.drr_db.as_ref().map(|d| d.sample(rng));
-        let (h, t60) = self.response(rng, rate, &mut out)?;
+        let (h, t60, direct) = self.response(rng, rate, &mut out)?;
         let mut h: Vec<f32> = h.as_ref().clone();
-        let peak_at = argmax_abs(&h);
+        let peak_at = direct
+            .filter(|&i| i < h.len())
+            .unwrap_or_else(|| argmax_abs(&h));
         let (e_direct, e_reverb) = direct_and_reverberant(&h, peak_at, rate);
         if let Some(drr) = drr_draw {
             out.drawn.insert("drr_db".into(), Value::from(drr));

@@ -84,13 +84,13 @@ pub struct Origin {
     pub source: String,
     /// Take index, from 0.
     pub take: u32,
-    /// The take's seed (a stable hash of recipe seed, clip id and take index).
+    /// The take's seed (a stable hash of recipe seed, clip id and take index), below 2^53.
     pub seed: u64,
     /// Sample rate of the source file before it was brought to the recipe's rate.
     pub source_rate: u32,
     /// Every step of the recipe in order, with what it drew and measured.
     pub steps: Vec<StepRecord>,
-    /// Source time to take time, all steps composed: `[[source_s, take_s], ...]`.
+    /// Source time to take time, all steps composed; in JSON `{"source": [...], "take": [...]}`.
     pub time_map: TimeMap,
 }
 
@@ -104,7 +104,9 @@ pub struct Clip {
     /// Timed transcript.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub lines: Option<Vec<Line>>,
-    /// Untimed transcript, for clips without `lines`.
+    /// The transcript as one string. Without `lines` it is the untimed transcript; beside
+    /// `lines` it is their texts joined by one space ([`joined_text`]), written on every
+    /// clip this crate makes so a loader needs no glue, and checked by [`validate`].
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub text: Option<String>,
     /// Audio length in seconds (written on takes; optional on input).
@@ -116,6 +118,25 @@ pub struct Clip {
     /// Fields this version does not know, carried through.
     #[serde(flatten)]
     pub extra: Map<String, Value>,
+}
+
+impl Clip {
+    /// Set `text` to the lines' texts joined ([`joined_text`]) when the clip is timed; an
+    /// untimed clip keeps its own `text`.
+    pub fn derive_text(&mut self) {
+        if let Some(lines) = &self.lines {
+            self.text = Some(joined_text(lines));
+        }
+    }
+}
+
+/// The texts of `lines` in order, joined by one space: a timed clip's top-level `text`.
+pub fn joined_text(lines: &[Line]) -> String {
+    lines
+        .iter()
+        .map(|l| l.text.as_str())
+        .collect::<Vec<_>>()
+        .join(" ")
 }
 
 /// One thing wrong with one line of a manifest or transcript file.
@@ -373,6 +394,18 @@ pub fn validate(clip: &Clip, duration: Option<f64>) -> Vec<(String, String)> {
         }
         return out;
     };
+    if let Some(text) = &clip.text {
+        let joined = joined_text(lines);
+        if *text != joined {
+            out.push((
+                "text".into(),
+                format!(
+                    "beside `lines`, `text` must be the lines' texts joined by one space \
+                     ({joined:?}), not {text:?}; leave it out and it is written for you"
+                ),
+            ));
+        }
+    }
     for (li, line) in lines.iter().enumerate() {
         let at = format!("lines[{li}]");
         check_span(&mut out, &at, line.start, line.end, duration, &clip.audio);
@@ -512,6 +545,30 @@ mod tests {
     use super::*;
 
     const GOOD: &str = r#"{"id":"a","audio":"a.wav","lines":[{"start":0.5,"end":1.5,"text":"bay three","speaker":"p1","words":[{"start":0.5,"end":0.9,"text":"bay"},{"start":1.0,"end":1.5,"text":"three"}]}],"site":"north"}"#;
+
+    #[test]
+    fn text_beside_lines_must_be_the_joined_lines() {
+        let mut clip = parse_clip(GOOD).unwrap();
+        assert_eq!(clip.text, None);
+        clip.derive_text();
+        assert_eq!(clip.text.as_deref(), Some("bay three"));
+        assert!(validate(&clip, Some(2.0)).is_empty());
+        // Written and read back, it is still a timed clip with the same text.
+        let mut buf = Vec::new();
+        write_manifest(&mut buf, [&clip]).unwrap();
+        let back = parse_clip(std::str::from_utf8(&buf).unwrap().trim_end()).unwrap();
+        assert_eq!(back, clip);
+        assert!(back.lines.is_some());
+        clip.text = Some("bay four".into());
+        let problems = validate(&clip, Some(2.0));
+        assert_eq!(problems.len(), 1, "{problems:?}");
+        assert_eq!(problems[0].0, "text");
+        // An untimed clip keeps its own text.
+        let mut untimed = parse_clip(r#"{"id":"u","audio":"u.wav","text":"gate  seven"}"#).unwrap();
+        untimed.derive_text();
+        assert_eq!(untimed.text.as_deref(), Some("gate  seven"));
+        assert!(validate(&untimed, None).is_empty());
+    }
 
     #[test]
     fn round_trip_keeps_unknown_fields() {

@@ -31,6 +31,10 @@ pub struct Document {
     pub header: String,
     /// The blocks after the header, in file order.
     pub blocks: Vec<Block>,
+    /// Departures from the syntax that lose nothing and so do not refuse the file: cue
+    /// settings the specification's parser ignores or that break the syntax (a setting only
+    /// changes a player's layout). Kept as written in `blocks`; line numbers as in errors.
+    pub warnings: Vec<SyntaxError>,
 }
 
 /// One block of a WebVTT file.
@@ -83,10 +87,14 @@ impl std::error::Error for SyntaxError {}
 /// Parse per the W3C WebVTT specification's file structure and parsing rules, but strictly:
 /// every error is collected with its line (missing or garbled `WEBVTT` signature, a bad
 /// timestamp, a timing line without spaces around `-->`, an end not after its start, cues out
-/// of start-time order, an unknown or badly valued cue or region setting, a duplicate cue
+/// of start-time order, an unknown or badly valued region setting, a duplicate cue
 /// identifier, STYLE or REGION after the first cue, a block that is none of cue, NOTE, STYLE
 /// or REGION, `-->` where a new block needs a blank line before it, a malformed inline
 /// timestamp or one outside its cue).
+///
+/// Cue settings are the exception: one that is unknown, badly valued or given twice is a
+/// [`Document::warnings`] entry, not an error, since it can change nothing but a player's
+/// layout and the specification's parser skips the bad ones.
 ///
 /// Header lines below the `WEBVTT` line are accepted (the specification's parser skips them
 /// and files in the wild carry them). Inline timestamps may equal their cue's start or end, as
@@ -170,8 +178,27 @@ impl Document {
 /// # Errors
 /// Each a [`Problem`] naming `path` and the file line: every [`SyntaxError`], plus every pair
 /// of overlapping cues (reported on the later one), which a transcript cannot hold — except
-/// when both carry voice spans with different speakers, which is cross-talk.
+/// when both carry voice spans with different speakers, which is cross-talk. Warnings are
+/// left out here; [`read_transcript`] keeps them.
 pub fn read_lines(path: &Path, text: &str) -> Result<Vec<Line>, Vec<Problem>> {
+    read_transcript(path, text).map(|t| t.lines)
+}
+
+/// A WebVTT file read as transcript lines, with what was worth saying about it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Transcript {
+    /// One line per cue, as [`read_lines`] gives them.
+    pub lines: Vec<Line>,
+    /// The file's [`Document::warnings`], each naming `path` and the file line.
+    pub warnings: Vec<Problem>,
+}
+
+/// [`read_lines`], keeping the warnings (cue settings that were ignored) for the caller to
+/// show.
+///
+/// # Errors
+/// As [`read_lines`].
+pub fn read_transcript(path: &Path, text: &str) -> Result<Transcript, Vec<Problem>> {
     let problem = |line: usize, message: String| Problem {
         file: path.to_path_buf(),
         line,
@@ -213,7 +240,7 @@ pub fn read_lines(path: &Path, text: &str) -> Result<Vec<Line>, Vec<Problem>> {
         problems.sort_by_key(|p| p.line);
         return Err(problems);
     }
-    Ok(cues
+    let lines = cues
         .into_iter()
         .map(|(cue, plain)| Line {
             start: cue.start,
@@ -223,7 +250,13 @@ pub fn read_lines(path: &Path, text: &str) -> Result<Vec<Line>, Vec<Problem>> {
             words: Vec::new(),
             extra: Map::new(),
         })
-        .collect())
+        .collect();
+    let warnings = doc
+        .warnings
+        .iter()
+        .map(|w| problem(w.line, w.message.clone()))
+        .collect();
+    Ok(Transcript { lines, warnings })
 }
 
 /// Transcript lines as a WebVTT file: `WEBVTT`, a blank line, then one cue per line,

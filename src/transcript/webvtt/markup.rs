@@ -15,8 +15,8 @@ pub struct CueText {
 /// Cue payload to plain text, through the specification's cue text tokenizer and tree rules:
 /// tags removed (c, i, b, u, ruby, rt, v, lang, timestamps, unknown ones), ruby text left out
 /// as the specification's rules for extracting a chapter title do (the base text is what was
-/// written), character references decoded (`&amp; &lt; &gt; &lrm; &rlm; &nbsp;` and numeric;
-/// other named ones are kept as written), every line break a single space, ASCII whitespace
+/// written), character references decoded as HTML does (every named reference of the HTML
+/// standard, `&eacute;` `&quot;` `&nbsp;` ..., and numeric), every line break a single space, ASCII whitespace
 /// trimmed at both ends. The speaker is the first voice span's annotation that is not empty.
 pub fn cue_text(raw: &str) -> CueText {
     #[derive(PartialEq)]
@@ -281,10 +281,13 @@ fn next_token(text: &str, pos: &mut usize) -> Kind {
     }
 }
 
-/// A character reference starting at `pos` (just after `&`): `&amp; &lt; &gt; &lrm; &rlm;
-/// &nbsp;` with their semicolon, or numeric (`&#233;`, `&#xE9;`, semicolon optional as in
-/// HTML; zero, surrogates and values past U+10FFFF give U+FFFD). On success `pos` moves past
-/// it; otherwise nothing is consumed and the `&` stays text.
+/// A character reference starting at `pos` (just after `&`), as the HTML standard's tokenizer
+/// consumes one in text (which WebVTT's cue text tokenizer defers to): numeric (`&#233;`,
+/// `&#xE9;`, semicolon optional; zero, surrogates and values past U+10FFFF give U+FFFD, and
+/// 0x80-0x9F take the standard's windows-1252 replacements), or the longest name from the
+/// standard's table of 2,231 named character references that the text starts with, which
+/// covers the legacy names that need no semicolon (`&eacute` alone, `&notit;` as `¬it;`).
+/// On success `pos` moves past it; otherwise nothing is consumed and the `&` stays text.
 fn char_ref(text: &str, pos: &mut usize) -> Option<String> {
     let rest = &text[*pos..];
     if let Some(num) = rest.strip_prefix('#') {
@@ -305,6 +308,7 @@ fn char_ref(text: &str, pos: &mut usize) -> Option<String> {
         let value = u32::from_str_radix(digits, radix).unwrap_or(u32::MAX);
         let c = match value {
             0 => '\u{fffd}',
+            0x80..=0x9f => windows_1252(value),
             v => char::from_u32(v).unwrap_or('\u{fffd}'),
         };
         let mut used = digits_from + digits.len();
@@ -314,17 +318,70 @@ fn char_ref(text: &str, pos: &mut usize) -> Option<String> {
         *pos += used;
         return Some(c.to_string());
     }
-    const NAMED: [(&str, char); 6] = [
-        ("amp;", '&'),
-        ("lt;", '<'),
-        ("gt;", '>'),
-        ("lrm;", '\u{200e}'),
-        ("rlm;", '\u{200f}'),
-        ("nbsp;", '\u{a0}'),
-    ];
-    let (name, c) = NAMED.iter().find(|(name, _)| rest.starts_with(name))?;
-    *pos += name.len();
-    Some(c.to_string())
+    let names = named_references();
+    let longest = rest
+        .char_indices()
+        .map(|(i, c)| i + c.len_utf8())
+        .take(names.longest)
+        .filter_map(|end| names.table.get(&rest[..end]).map(|chars| (end, *chars)))
+        .last();
+    let (len, chars) = longest?;
+    *pos += len;
+    Some(chars.to_string())
+}
+
+/// The HTML standard's named character references, without their `&`, and the longest name.
+struct Names {
+    table: std::collections::HashMap<&'static str, &'static str>,
+    longest: usize,
+}
+
+fn named_references() -> &'static Names {
+    static NAMES: std::sync::OnceLock<Names> = std::sync::OnceLock::new();
+    NAMES.get_or_init(|| {
+        let table: std::collections::HashMap<_, _> = entities::ENTITIES
+            .iter()
+            .map(|e| (e.entity.trim_start_matches('&'), e.characters))
+            .collect();
+        let longest = table.keys().map(|k| k.chars().count()).max().unwrap_or(0);
+        Names { table, longest }
+    })
+}
+
+/// The HTML standard's replacements for numeric references to C1 controls (its "numeric
+/// character reference end state" table); a code point it does not list stays as it is.
+fn windows_1252(value: u32) -> char {
+    let replaced = match value {
+        0x80 => 0x20ac,
+        0x82 => 0x201a,
+        0x83 => 0x0192,
+        0x84 => 0x201e,
+        0x85 => 0x2026,
+        0x86 => 0x2020,
+        0x87 => 0x2021,
+        0x88 => 0x02c6,
+        0x89 => 0x2030,
+        0x8a => 0x0160,
+        0x8b => 0x2039,
+        0x8c => 0x0152,
+        0x8e => 0x017d,
+        0x91 => 0x2018,
+        0x92 => 0x2019,
+        0x93 => 0x201c,
+        0x94 => 0x201d,
+        0x95 => 0x2022,
+        0x96 => 0x2013,
+        0x97 => 0x2014,
+        0x98 => 0x02dc,
+        0x99 => 0x2122,
+        0x9a => 0x0161,
+        0x9b => 0x203a,
+        0x9c => 0x0153,
+        0x9e => 0x017e,
+        0x9f => 0x0178,
+        v => v,
+    };
+    char::from_u32(replaced).unwrap_or('\u{fffd}')
 }
 
 #[cfg(test)]
@@ -361,6 +418,28 @@ mod tests {
             .find(|t| matches!(t.kind, Kind::Stamp(_)))
             .unwrap();
         assert_eq!(&text[stamp.at..stamp.at + 11], "<00:01.500>");
+    }
+
+    #[test]
+    fn every_named_reference_of_the_html_standard_is_decoded() {
+        // The HTML standard's table (its entities.json) has 2,231 entries: 2,125 names with a
+        // semicolon and 106 legacy ones also valid without.
+        assert_eq!(named_references().table.len(), 2231);
+        let legacy = named_references()
+            .table
+            .keys()
+            .filter(|k| !k.ends_with(';'))
+            .count();
+        assert_eq!(legacy, 106);
+        assert_eq!(
+            cue_text("caf&eacute; &quot;ok&quot; a&nbsp;b &ccedil;a &Eacute").text,
+            "café \"ok\" a\u{a0}b ça É"
+        );
+        // Longest match, legacy names without a semicolon, two-code-point references.
+        assert_eq!(
+            cue_text("&notit; &notin; &ampx &nvlt;").text,
+            "¬it; ∉ &x <\u{20d2}"
+        );
     }
 
     #[test]

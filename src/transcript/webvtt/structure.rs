@@ -12,6 +12,7 @@ pub(super) fn parse_all(text: &str) -> (Document, Vec<SyntaxError>) {
     let mut parser = Parser {
         lines: split_lines(text),
         errors: Vec::new(),
+        warnings: Vec::new(),
         blocks: Vec::new(),
         seen_cue: false,
         latest_start: None,
@@ -40,6 +41,7 @@ pub(super) fn parse_all(text: &str) -> (Document, Vec<SyntaxError>) {
     let doc = Document {
         header,
         blocks: parser.blocks,
+        warnings: parser.warnings,
     };
     (doc, errors)
 }
@@ -73,6 +75,7 @@ fn split_lines(text: &str) -> Vec<String> {
 struct Parser {
     lines: Vec<String>,
     errors: Vec<SyntaxError>,
+    warnings: Vec<SyntaxError>,
     blocks: Vec<Block>,
     seen_cue: bool,
     /// The latest cue start so far and its (0-based) line.
@@ -217,7 +220,10 @@ impl Parser {
             self.latest_start = Some((start, t));
         }
         for m in self.check_settings(&settings) {
-            self.error(t, m);
+            self.warnings.push(SyntaxError {
+                line: t + 1,
+                message: m,
+            });
         }
         if let Some(id) = &id
             && let Some(prev) = self.cue_ids.insert(id.clone(), first)
@@ -348,14 +354,24 @@ impl Parser {
         }
     }
 
-    /// The specification's cue settings syntax: each of vertical, line, position, size, align
-    /// and region at most once, with the values it defines.
+    /// The cue settings checked against the specification's syntax (each of vertical, line,
+    /// position, size, align and region at most once, with the values it defines): one
+    /// warning per setting that breaks it. A setting only changes how a player lays the cue
+    /// out, never its times or text, so none of this refuses the file; each warning says
+    /// whether the specification's parser ("parse the WebVTT cue settings") ignores the
+    /// setting or applies it although it is outside the syntax.
     fn check_settings(&self, settings: &str) -> Vec<String> {
         let mut out = Vec::new();
         let mut seen = HashSet::new();
-        for token in settings.split([' ', '\t']).filter(|s| !s.is_empty()) {
+        for token in settings.split_ascii_whitespace() {
+            let fate = match parser_ignores(token, &self.regions) {
+                true => "ignored, as the WebVTT parser does",
+                false => {
+                    "kept as written; players apply it, though it is outside the WebVTT syntax"
+                }
+            };
             let Some((name, value)) = token.split_once(':') else {
-                out.push(format!("cue setting `{token}` needs name:value"));
+                out.push(format!("cue setting `{token}` needs name:value; {fate}"));
                 continue;
             };
             let (ok, expected) = match name {
@@ -391,20 +407,70 @@ impl Parser {
                 _ => {
                     out.push(format!(
                         "unknown cue setting `{name}` (WebVTT has vertical, line, position, size, \
-                         align, region)"
+                         align, region); {fate}"
                     ));
                     continue;
                 }
             };
             if !seen.insert(name) {
-                out.push(format!("cue setting `{name}` given twice"));
+                out.push(format!(
+                    "cue setting `{name}` given twice; the later one is {fate}"
+                ));
             } else if !ok {
                 out.push(format!(
-                    "bad value `{value}` for cue setting `{name}`: expected {expected}"
+                    "bad value `{value}` for cue setting `{name}`: expected {expected}; {fate}"
                 ));
             }
         }
         out
+    }
+}
+
+/// Whether the specification's "parse the WebVTT cue settings" skips `token` (one setting as
+/// split at spaces), given the regions defined so far. Its steps, by name: no colon, or the
+/// colon first or last, skips; `region` names a defined region or sets none; `vertical` takes
+/// `rl` or `lr`; `line` needs a digit, then a percentage when it ends in `%`, else only `-`
+/// (first), digits and one `.` between digits, and an alignment of start, center or end if
+/// any; `position` a percentage and an alignment of line-left, center or line-right if any;
+/// `size` a percentage; `align` start, center, end, left or right; any other name is skipped.
+fn parser_ignores(token: &str, regions: &HashMap<String, usize>) -> bool {
+    let Some((name, value)) = token.split_once(':') else {
+        return true;
+    };
+    if name.is_empty() || value.is_empty() {
+        return true;
+    }
+    match name {
+        "region" => !regions.contains_key(value),
+        "vertical" => !matches!(value, "rl" | "lr"),
+        "line" => {
+            let (at, align) = split_align(value);
+            if !at.bytes().any(|b| b.is_ascii_digit()) {
+                return true;
+            }
+            let number_ok = if at.ends_with('%') {
+                is_percentage(at)
+            } else {
+                let bytes = at.as_bytes();
+                let digit = |i: usize| bytes.get(i).is_some_and(u8::is_ascii_digit);
+                let dots: Vec<usize> = (0..bytes.len()).filter(|&i| bytes[i] == b'.').collect();
+                at.bytes()
+                    .all(|b| b == b'-' || b == b'.' || b.is_ascii_digit())
+                    && !at[1..].contains('-')
+                    && dots.len() <= 1
+                    && dots.iter().all(|&i| i > 0 && digit(i - 1) && digit(i + 1))
+                    && at.trim_start_matches('-').parse::<f64>().is_ok()
+            };
+            !number_ok || align.is_some_and(|a| !matches!(a, "start" | "center" | "end"))
+        }
+        "position" => {
+            let (at, align) = split_align(value);
+            !is_percentage(at)
+                || align.is_some_and(|a| !matches!(a, "line-left" | "center" | "line-right"))
+        }
+        "size" => !is_percentage(value),
+        "align" => !matches!(value, "start" | "center" | "end" | "left" | "right"),
+        _ => true,
     }
 }
 
@@ -502,6 +568,7 @@ mod tests {
         let p = Parser {
             lines: vec![],
             errors: vec![],
+            warnings: vec![],
             blocks: vec![],
             seen_cue: false,
             latest_start: None,
