@@ -311,3 +311,24 @@ fn a_rerun_with_fewer_takes_and_clips_leaves_only_what_its_manifest_lists() {
         b"not a take"
     );
 }
+
+#[test]
+fn a_manifest_the_run_did_not_write_never_gets_its_audio_removed() {
+    let tmp = tempfile::tempdir().unwrap();
+    let manifest = setup(tmp.path());
+    let out = tmp.path().join("out");
+    std::fs::create_dir_all(out.join("takes")).unwrap();
+    // An imported manifest (no `origin`: not takes) naming a recording under takes/.
+    std::fs::write(out.join("takes/user.wav"), b"a recording").unwrap();
+    std::fs::write(
+        out.join("manifest.jsonl"),
+        clip("u", "takes/user.wav", 1.0) + "\n",
+    )
+    .unwrap();
+    let o = run(&tmp.path().join("recipe.toml"), &manifest, &out);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
+    assert_eq!(
+        std::fs::read(out.join("takes/user.wav")).unwrap(),
+        b"a recording"
+    );
+}

@@ -175,7 +175,14 @@ pub fn cut(spec: &CutSpec<'_>) -> Result<CutSummary, RunError> {
         &[CUTS_DIR],
         MANIFEST_NAME,
         &[REJECTS_NAME, LEFT_OUT_NAME],
-        |c| vec![c.audio.clone()],
+        // Only cut records (with their `cut` field) name files a cut wrote.
+        |c| {
+            if c.extra.contains_key("cut") {
+                vec![c.audio.clone()]
+            } else {
+                Vec::new()
+            }
+        },
     )
     .map_err(RunError::output(spec.out))?;
     let threads = spec.threads.unwrap_or(0);
