@@ -332,3 +332,57 @@ fn a_manifest_the_run_did_not_write_never_gets_its_audio_removed() {
         b"a recording"
     );
 }
+
+#[test]
+fn cut_and_remap_respect_the_lock_and_cut_refuses_an_output_over_its_input() {
+    let tmp = tempfile::tempdir().unwrap();
+    setup(tmp.path());
+    let data = tmp.path().join("data");
+    std::fs::create_dir_all(&data).unwrap();
+    std::fs::copy(tmp.path().join("b.wav"), data.join("b.wav")).unwrap();
+    let input = data.join("manifest.jsonl");
+    std::fs::write(&input, clip("b", "b.wav", 1.5) + "\n").unwrap();
+    let cut = |out: &Path| {
+        retake(&[
+            "cut",
+            input.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+            "--shortest",
+            "0.5",
+        ])
+    };
+    let before = std::fs::read(&input).unwrap();
+    let o = cut(&data);
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o.stderr));
+    assert!(
+        text(&o.stderr).contains("input manifest"),
+        "{}",
+        text(&o.stderr)
+    );
+    assert_eq!(std::fs::read(&input).unwrap(), before);
+    let out = tmp.path().join("out");
+    let held = retake::outdir::FolderLock::acquire(&out).unwrap();
+    let pid = format!("process id {}", std::process::id());
+    let o = cut(&out);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(text(&o.stderr).contains(&pid), "{}", text(&o.stderr));
+    let labels = tmp.path().join("labels");
+    std::fs::create_dir_all(&labels).unwrap();
+    let o = retake(&[
+        "remap",
+        input.to_str().unwrap(),
+        labels.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(text(&o.stderr).contains(&pid), "{}", text(&o.stderr));
+    drop(held);
+    assert_eq!(
+        cut(&out).status.code(),
+        Some(0),
+        "{}",
+        text(&cut(&out).stderr)
+    );
+}
