@@ -334,7 +334,7 @@ fn a_manifest_the_run_did_not_write_never_gets_its_audio_removed() {
 }
 
 #[test]
-fn cut_and_remap_respect_the_lock_and_cut_refuses_an_output_over_its_input() {
+fn cut_remap_and_export_respect_the_lock_and_cut_refuses_an_output_over_its_input() {
     let tmp = tempfile::tempdir().unwrap();
     setup(tmp.path());
     let data = tmp.path().join("data");
@@ -378,6 +378,15 @@ fn cut_and_remap_respect_the_lock_and_cut_refuses_an_output_over_its_input() {
     ]);
     assert_eq!(o.status.code(), Some(1));
     assert!(text(&o.stderr).contains(&pid), "{}", text(&o.stderr));
+    let o = retake(&[
+        "export",
+        input.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(text(&o.stderr).contains(&pid), "{}", text(&o.stderr));
+    assert!(!out.join("b.vtt").exists());
     drop(held);
     assert_eq!(
         cut(&out).status.code(),
@@ -385,4 +394,43 @@ fn cut_and_remap_respect_the_lock_and_cut_refuses_an_output_over_its_input() {
         "{}",
         text(&cut(&out).stderr)
     );
+}
+
+#[test]
+fn a_changed_measured_response_makes_kept_takes_stale() {
+    let tmp = tempfile::tempdir().unwrap();
+    let manifest = setup(tmp.path());
+    let irs = tmp.path().join("irs");
+    std::fs::create_dir_all(&irs).unwrap();
+    // A response: a direct path, then a decaying tail (invented, 0.1 s).
+    let response = |decay: f32| -> Vec<f32> {
+        (0..1600)
+            .map(|i| {
+                if i == 0 {
+                    1.0
+                } else {
+                    0.3 * (-(i as f32) / decay).exp() * if i % 2 == 0 { 1.0 } else { -1.0 }
+                }
+            })
+            .collect()
+    };
+    common::write_wav_float(&irs.join("aisle.wav"), 16000, &response(200.0));
+    let recipe = tmp.path().join("room.toml");
+    std::fs::write(
+        &recipe,
+        "seed = 3\ntakes = 1\n[[step]]\ndo = \"room\"\nirs = \"irs\"\n",
+    )
+    .unwrap();
+    let out = tmp.path().join("out");
+    let o = run(&recipe, &manifest, &out);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
+    assert!(text(&run(&recipe, &manifest, &out).stdout).contains("kept    2 clips"));
+    let before = std::fs::read(out.join("takes/a.t0.wav")).unwrap();
+    common::write_wav_float(&irs.join("aisle.wav"), 16000, &response(600.0));
+    let stdout = text(&run(&recipe, &manifest, &out).stdout);
+    assert!(
+        !stdout.contains("kept") && stdout.contains("made    2 takes"),
+        "{stdout}"
+    );
+    assert_ne!(std::fs::read(out.join("takes/a.t0.wav")).unwrap(), before);
 }
