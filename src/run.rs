@@ -249,7 +249,11 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
         &[TAKES_DIR, DONE_DIR],
         MANIFEST_NAME,
         &[REJECTS_NAME],
-        |c| take_files(c).map(str::to_string).collect(),
+        // Only take records (with an `origin`) name files a run wrote.
+        |c| match c.origin {
+            Some(_) => take_files(c).map(str::to_string).collect(),
+            None => Vec::new(),
+        },
     )
     .map_err(RunError::output(spec.out))?;
     let threads = spec.threads.unwrap_or(0);

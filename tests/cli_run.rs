@@ -5,7 +5,7 @@ mod common;
 
 use std::path::{Path, PathBuf};
 
-use common::{read_jsonl, retake, write_wav_pcm16 as write_wav};
+use common::{files_under, read_jsonl, retake, write_wav_pcm16 as write_wav};
 use serde_json::Value;
 
 /// Tone bursts standing in for words: 0.3 s bursts every 0.6 s from 0.2 s.
@@ -65,26 +65,6 @@ fn setup_good(dir: &Path) -> PathBuf {
     )
     .unwrap();
     manifest
-}
-
-fn files_under(dir: &Path) -> Vec<(String, Vec<u8>)> {
-    let mut out = Vec::new();
-    let mut stack = vec![dir.to_path_buf()];
-    while let Some(d) = stack.pop() {
-        for e in std::fs::read_dir(d).unwrap() {
-            let p = e.unwrap().path();
-            if p.is_dir() {
-                stack.push(p);
-            } else {
-                out.push((
-                    p.strip_prefix(dir).unwrap().display().to_string(),
-                    std::fs::read(&p).unwrap(),
-                ));
-            }
-        }
-    }
-    out.sort();
-    out
 }
 
 #[test]

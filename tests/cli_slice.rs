@@ -8,7 +8,7 @@ mod common;
 use std::path::Path;
 
 use common::session::{self, RATE, Session};
-use common::{outside_minus_inside_db, read_jsonl, retake, run_python};
+use common::{files_under, outside_minus_inside_db, read_jsonl, retake, run_python};
 use retake::audio::{self, ChannelPolicy};
 use serde_json::Value;
 
@@ -321,24 +321,6 @@ fn output_is_the_same_byte_for_byte_on_one_or_two_threads() {
     let spread = leads.iter().cloned().fold(f64::NEG_INFINITY, f64::max)
         - leads.iter().cloned().fold(f64::INFINITY, f64::min);
     assert!(spread > 0.1, "pads do not vary: {leads:?}");
-}
-
-fn files_under(dir: &Path) -> Vec<(String, Vec<u8>)> {
-    let mut out = Vec::new();
-    let mut stack = vec![dir.to_path_buf()];
-    while let Some(d) = stack.pop() {
-        for e in std::fs::read_dir(d).unwrap() {
-            let p = e.unwrap().path();
-            if p.is_dir() {
-                stack.push(p);
-            } else {
-                let name = p.strip_prefix(dir).unwrap().display().to_string();
-                out.push((name, std::fs::read(&p).unwrap()));
-            }
-        }
-    }
-    out.sort();
-    out
 }
 
 /// Room tone with 300 Hz bursts standing in for speech over `spans` (seconds).

@@ -311,3 +311,126 @@ fn a_rerun_with_fewer_takes_and_clips_leaves_only_what_its_manifest_lists() {
         b"not a take"
     );
 }
+
+#[test]
+fn a_manifest_the_run_did_not_write_never_gets_its_audio_removed() {
+    let tmp = tempfile::tempdir().unwrap();
+    let manifest = setup(tmp.path());
+    let out = tmp.path().join("out");
+    std::fs::create_dir_all(out.join("takes")).unwrap();
+    // An imported manifest (no `origin`: not takes) naming a recording under takes/.
+    std::fs::write(out.join("takes/user.wav"), b"a recording").unwrap();
+    std::fs::write(
+        out.join("manifest.jsonl"),
+        clip("u", "takes/user.wav", 1.0) + "\n",
+    )
+    .unwrap();
+    let o = run(&tmp.path().join("recipe.toml"), &manifest, &out);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
+    assert_eq!(
+        std::fs::read(out.join("takes/user.wav")).unwrap(),
+        b"a recording"
+    );
+}
+
+#[test]
+fn slice_remap_and_export_respect_the_lock_and_slice_refuses_an_output_over_its_input() {
+    let tmp = tempfile::tempdir().unwrap();
+    setup(tmp.path());
+    let data = tmp.path().join("data");
+    std::fs::create_dir_all(&data).unwrap();
+    std::fs::copy(tmp.path().join("b.wav"), data.join("b.wav")).unwrap();
+    let input = data.join("manifest.jsonl");
+    std::fs::write(&input, clip("b", "b.wav", 1.5) + "\n").unwrap();
+    let slice = |out: &Path| {
+        retake(&[
+            "slice",
+            input.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+            "--shortest",
+            "0.5",
+        ])
+    };
+    let before = std::fs::read(&input).unwrap();
+    let o = slice(&data);
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o.stderr));
+    assert!(
+        text(&o.stderr).contains("input manifest"),
+        "{}",
+        text(&o.stderr)
+    );
+    assert_eq!(std::fs::read(&input).unwrap(), before);
+    let out = tmp.path().join("out");
+    let held = retake::outdir::FolderLock::acquire(&out).unwrap();
+    let pid = format!("process id {}", std::process::id());
+    let o = slice(&out);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(text(&o.stderr).contains(&pid), "{}", text(&o.stderr));
+    let labels = tmp.path().join("labels");
+    std::fs::create_dir_all(&labels).unwrap();
+    let o = retake(&[
+        "remap",
+        input.to_str().unwrap(),
+        labels.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(text(&o.stderr).contains(&pid), "{}", text(&o.stderr));
+    let o = retake(&[
+        "export",
+        input.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(text(&o.stderr).contains(&pid), "{}", text(&o.stderr));
+    assert!(!out.join("b.vtt").exists());
+    drop(held);
+    assert_eq!(
+        slice(&out).status.code(),
+        Some(0),
+        "{}",
+        text(&slice(&out).stderr)
+    );
+}
+
+#[test]
+fn a_changed_measured_response_makes_kept_takes_stale() {
+    let tmp = tempfile::tempdir().unwrap();
+    let manifest = setup(tmp.path());
+    let irs = tmp.path().join("irs");
+    std::fs::create_dir_all(&irs).unwrap();
+    // A response: a direct path, then a decaying tail (invented, 0.1 s).
+    let response = |decay: f32| -> Vec<f32> {
+        (0..1600)
+            .map(|i| {
+                if i == 0 {
+                    1.0
+                } else {
+                    0.3 * (-(i as f32) / decay).exp() * if i % 2 == 0 { 1.0 } else { -1.0 }
+                }
+            })
+            .collect()
+    };
+    common::write_wav_float(&irs.join("aisle.wav"), 16000, &response(200.0));
+    let recipe = tmp.path().join("room.toml");
+    std::fs::write(
+        &recipe,
+        "seed = 3\ntakes = 1\n[[step]]\ndo = \"room\"\nirs = \"irs\"\n",
+    )
+    .unwrap();
+    let out = tmp.path().join("out");
+    let o = run(&recipe, &manifest, &out);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
+    assert!(text(&run(&recipe, &manifest, &out).stdout).contains("kept    2 clips"));
+    let before = std::fs::read(out.join("takes/a.t0.wav")).unwrap();
+    common::write_wav_float(&irs.join("aisle.wav"), 16000, &response(600.0));
+    let stdout = text(&run(&recipe, &manifest, &out).stdout);
+    assert!(
+        !stdout.contains("kept") && stdout.contains("made    2 takes"),
+        "{stdout}"
+    );
+    assert_ne!(std::fs::read(out.join("takes/a.t0.wav")).unwrap(), before);
+}

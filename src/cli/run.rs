@@ -104,11 +104,15 @@ fn print_summary(s: &Summary, out: &Path) {
             s.removed
         );
     }
-    println!(
-        "time    {:.2} s, {:.0}x real time (audio made per wall second)",
-        s.wall_seconds,
-        s.made_per_second()
-    );
+    if s.takes_made() == 0 {
+        println!("time    {:.2} s (nothing left to make)", s.wall_seconds);
+    } else {
+        println!(
+            "time    {:.2} s, {:.0}x real time (audio made per wall second)",
+            s.wall_seconds,
+            s.made_per_second()
+        );
+    }
     println!(
         "output  {} ({}, {:.3} h)",
         out.join(run::MANIFEST_NAME).display(),

@@ -81,7 +81,12 @@ pub fn slice(args: SliceArgs) -> ExitCode {
     match slice::slice(&spec) {
         Err(e) => {
             eprintln!("retake: {e}");
-            ExitCode::FAILURE
+            // An output over the input is a command line to change; the rest could not run.
+            if matches!(e, retake::run::RunError::WouldOverwrite(_)) {
+                ExitCode::from(2)
+            } else {
+                ExitCode::FAILURE
+            }
         }
         Ok(summary) => {
             print_summary(&summary, &args.out);

@@ -175,7 +175,14 @@ pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
         &[SLICES_DIR],
         MANIFEST_NAME,
         &[REJECTS_NAME, LEFT_OUT_NAME],
-        |c| vec![c.audio.clone()],
+        // Only slice records (with their `slice` field) name files a slicing run wrote.
+        |c| {
+            if c.extra.contains_key("slice") {
+                vec![c.audio.clone()]
+            } else {
+                Vec::new()
+            }
+        },
     )
     .map_err(RunError::output(spec.out))?;
     let threads = spec.threads.unwrap_or(0);

@@ -290,3 +290,22 @@ pub fn one_step_at(dir: &Path, rate: u32, step: &str) -> retake::recipe::Plan {
     )
     .unwrap_or_else(|e| panic!("{e}"))
 }
+
+/// Every file under `dir` (recursively) as (path relative to `dir`, bytes), sorted by path.
+pub fn files_under(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut out = Vec::new();
+    let mut stack = vec![dir.to_path_buf()];
+    while let Some(d) = stack.pop() {
+        for e in std::fs::read_dir(d).unwrap() {
+            let p = e.unwrap().path();
+            if p.is_dir() {
+                stack.push(p);
+            } else {
+                let name = p.strip_prefix(dir).unwrap().display().to_string();
+                out.push((name, std::fs::read(&p).unwrap()));
+            }
+        }
+    }
+    out.sort();
+    out
+}
