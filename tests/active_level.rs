@@ -341,7 +341,7 @@ import numpy as np
 
 x = np.fromfile(sys.argv[1], '<f8')
 fs = float(sys.argv[2])
-T, H, M = 0.03, 0.2, 15.9  # P.56 clause 8.3
+T, H, M = 0.03, 0.2, 15.9  # P.56 clause 8.3, as realized in ITU-T G.191 sv-p56
 g = np.exp(-1.0 / (T * fs))
 h = 1.0 - g
 I = int(np.floor(H * fs + 0.5))
@@ -409,4 +409,12 @@ fn agrees_with_an_independent_numpy_implementation() {
             "{name}: {m:?} vs numpy {v:?}"
         );
     }
+}
+
+#[test]
+fn the_constants_are_p56s() {
+    // P.56 clause 8.3 "Values of the parameters", as realized by the ITU-T itself in the
+    // G.191 Software Tool Library (module sv-p56, v2.3): T = 0.03 s, H = 0.20 s,
+    // M = 15.9 dB.
+    assert_eq!((TIME_CONSTANT_S, HANGOVER_S, MARGIN_DB), (0.03, 0.2, 15.9));
 }

@@ -377,8 +377,8 @@ fn written_pcm16_reads_back_in_libsndfile_with_the_documented_scale() {
         -1.0,
         -0.5,
         0.0,
-        0.4 / 32767.0,
-        0.6 / 32767.0,
+        0.4 / 32768.0,
+        0.6 / 32768.0,
         0.5,
         1.0,
         1.2,
@@ -401,10 +401,11 @@ fn written_pcm16_reads_back_in_libsndfile_with_the_documented_scale() {
     let codes: Vec<i32> = back.samples.iter().map(|v| (v * 32768.0) as i32).collect();
     assert_eq!(
         &codes[..9],
-        &[-32768, -32767, -16384, 0, 0, 1, 16384, 32767, 32767]
+        &[-32768, -32768, -16384, 0, 0, 1, 16384, 32767, 32767]
     );
     for (i, (&x, &code)) in audio.samples.iter().zip(&codes).enumerate() {
-        let want = (f64::from(x) * 32767.0).round().clamp(-32768.0, 32767.0) as i32;
+        // The documented scale: round(x · 32768), clamped (libsndfile's reading scale).
+        let want = (f64::from(x) * 32768.0).round().clamp(-32768.0, 32767.0) as i32;
         assert_eq!(code, want, "sample {i} ({x})");
     }
 }

@@ -41,7 +41,7 @@ fn write_wav(path: &Path, samples: &[f32]) {
     };
     let mut w = hound::WavWriter::create(path, spec).unwrap();
     for &s in samples {
-        w.write_sample((s * 32767.0).round() as i16).unwrap();
+        w.write_sample((s * 32768.0).round() as i16).unwrap();
     }
     w.finalize().unwrap();
 }

@@ -427,7 +427,7 @@ fn channels_option_picks_a_channel() {
     let mut w = hound::WavWriter::create(dir.join("st.wav"), spec).unwrap();
     for s in bursts(16000, 2.0) {
         w.write_sample(0i16).unwrap();
-        w.write_sample((s * 32767.0) as i16).unwrap();
+        w.write_sample((s * 32768.0) as i16).unwrap();
     }
     w.finalize().unwrap();
     let manifest = dir.join("st.jsonl");

@@ -29,15 +29,8 @@ const HALF_POWER_DB: f64 = 3.010_299_956_639_812;
 
 /// Python 3.11 `audioop` (standard library), width 2: every 16-bit input through
 /// `lin2ulaw` and `lin2alaw` (hex, one line each), then every code through `ulaw2lin` and
-/// `alaw2lin` (decimal, one line each).
+/// `alaw2lin` (decimal, one line each); after [`common::AUDIOOP_EVERY_PCM16`].
 const AUDIOOP_ALL: &str = r#"
-import array, sys, warnings
-warnings.simplefilter("ignore")
-import audioop
-pcm = array.array("h", range(-32768, 32768))
-if sys.byteorder != "little":
-    pcm.byteswap()
-data = pcm.tobytes()
 print(audioop.lin2ulaw(data, 2).hex())
 print(audioop.lin2alaw(data, 2).hex())
 codes = bytes(range(256))
@@ -58,7 +51,10 @@ fn hex_bytes(s: &str) -> Vec<u8> {
 
 #[test]
 fn g711_bit_exact_with_audioop_over_every_input_and_code() {
-    let out = common::run_python(AUDIOOP_ALL, &[]);
+    let out = common::run_python(
+        &format!("{}{AUDIOOP_ALL}", common::AUDIOOP_EVERY_PCM16),
+        &[],
+    );
     let lines: Vec<&str> = out.lines().collect();
     assert_eq!(lines.len(), 4, "audioop output: {} lines", lines.len());
     let (ulaw, alaw) = (hex_bytes(lines[0]), hex_bytes(lines[1]));
@@ -143,7 +139,7 @@ fn g711_table_values() {
 
 #[test]
 fn g711_round_trip_scaling_and_error() {
-    // Scaling stated in the docs: round(x * 32767) in, y / 32768 out.
+    // Scaling stated in the docs: round(x * 32768) in, y / 32768 out (retake::dsp::pcm16).
     let x: Vec<f32> = (-1000..=1000).map(|i| i as f32 / 1000.0).collect();
     for (name, y, decode, encode) in [
         (
@@ -156,7 +152,7 @@ fn g711_round_trip_scaling_and_error() {
     ] {
         assert_eq!(y.len(), x.len());
         for (&a, &b) in x.iter().zip(&y) {
-            let pcm = (f64::from(a) * 32767.0).round() as i16;
+            let pcm = (f64::from(a) * 32768.0).round().min(32767.0) as i16;
             assert_eq!(b, f32::from(decode(encode(pcm))) / 32768.0, "{name} at {a}");
             // G.711 segments: the step is at most 1/16 of the segment's lower bound, so the
             // error is at most 1/32 of the value plus the smallest half step (1/256 at 16 bits

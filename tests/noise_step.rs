@@ -29,9 +29,8 @@ out = []
 for j in jobs:
     s, _ = sf.read(j["clean"], dtype="float64")
     n, _ = sf.read(j["noise"], dtype="float64")
-    # libsndfile reads 16-bit PCM as v / 32768; retake writes round(x * 32767).
+    # libsndfile reads 16-bit PCM as v / 32768, the scale retake writes with.
     m, _ = sf.read(j["mix"], dtype="float64")
-    m = m * 32768 / 32767
     idx = np.concatenate([np.arange(a, b) for a, b in j["ranges"]])
     snr = 10 * np.log10(np.mean(s[idx] ** 2) / np.mean(n[idx] ** 2))
     out.append([snr, float(np.max(np.abs(m - (s + n))))])
@@ -107,7 +106,7 @@ fn snr_from_the_stems_matches_the_draw_within_0_05_db() {
         );
         // The written 16-bit mixture is the sum of the stems within rounding to 16 bits.
         assert!(
-            mix_err <= 0.5 / 32767.0 + 1e-7,
+            mix_err <= 0.5 / 32768.0 + 1e-7,
             "{id}: mix differs from clean + noise by {mix_err}"
         );
     }
@@ -240,7 +239,9 @@ fn loud_mix_is_scaled_down_with_the_snr_kept() {
             .map(|s| s.unwrap().unsigned_abs())
             .max()
             .unwrap();
-        assert!(peak <= 32767, "{peak}");
+        // Scaled to full scale exactly: a peak of -1.0 is code -32768; +1.0 is clamped to
+        // 32767 (16-bit PCM's positive full scale, 1 - 2^-15).
+        assert!((32_767..=32_768).contains(&peak), "{peak}");
     }
 }
 

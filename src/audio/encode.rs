@@ -7,6 +7,7 @@ use std::path::Path;
 use hound::{WavSpec, WavWriter};
 
 use super::{Audio, AudioError, SampleFormat};
+use crate::dsp::pcm16;
 
 /// Samples handed to hound's 16-bit writer per call; its internal buffer is reused.
 const PCM16_CHUNK: usize = 1 << 16;
@@ -18,9 +19,9 @@ const MAX_HEADER_BYTES: u64 = 68;
 /// caller picks the name: the runner writes to a temporary name and renames.
 ///
 /// Scales:
-/// - [`SampleFormat::Pcm16`]: `round(x * 32767)` (ties away from zero), clamped to
-///   [-32768, 32767]. So 1.0 → 32767 and -1.0 → -32767; anything beyond ±1 clips.
-///   Read back by a decoder dividing by 32768, 1.0 returns as 32767 / 32768.
+/// - [`SampleFormat::Pcm16`]: `round(x * 32768)` (ties away from zero), clamped to
+///   [-32768, 32767] ([`crate::dsp::pcm16`]): the decoder's own scale, so a 16-bit input
+///   written back unchanged is bit-identical. -1.0 → -32768; 1.0 clips to 32767.
 /// - [`SampleFormat::Float32`]: the `f32` values unchanged (IEEE float WAV), no clipping.
 ///
 /// # Errors
@@ -85,12 +86,6 @@ pub fn write_wav(path: &Path, audio: &Audio, format: SampleFormat) -> Result<(),
     })
 }
 
-/// The 16-bit value written for `x`: `round(x * 32767)` clamped to the `i16` range.
-pub(crate) fn to_pcm16(x: f32) -> i16 {
-    // `as` saturates at the i16 bounds, which is the clamp.
-    (x * 32767.0).round() as i16
-}
-
 fn write_pcm16(
     writer: &mut WavWriter<BufWriter<File>>,
     samples: &[f32],
@@ -99,28 +94,9 @@ fn write_pcm16(
         // Length fits: chunks are at most PCM16_CHUNK long.
         let mut w = writer.get_i16_writer(chunk.len() as u32);
         for &x in chunk {
-            w.write_sample(to_pcm16(x));
+            w.write_sample(pcm16::to_i16(x));
         }
         w.flush()?;
     }
     Ok(())
-}
-
-#[cfg(test)]
-mod tests {
-    use super::to_pcm16;
-
-    #[test]
-    fn pcm16_scale_rounds_and_clamps() {
-        assert_eq!(to_pcm16(0.0), 0);
-        assert_eq!(to_pcm16(1.0), 32767);
-        assert_eq!(to_pcm16(-1.0), -32767);
-        assert_eq!(to_pcm16(2.0), 32767);
-        assert_eq!(to_pcm16(-2.0), -32768);
-        // Nearest step, not truncation toward zero.
-        assert_eq!(to_pcm16(0.6 / 32767.0), 1);
-        assert_eq!(to_pcm16(0.4 / 32767.0), 0);
-        assert_eq!(to_pcm16(-1.6 / 32767.0), -2);
-        assert_eq!(to_pcm16(-1.4 / 32767.0), -1);
-    }
 }

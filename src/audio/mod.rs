@@ -44,7 +44,8 @@ pub enum ChannelPolicy {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
 #[serde(rename_all = "lowercase")]
 pub enum SampleFormat {
-    /// 16-bit signed PCM: `round(x * 32767)`, clamped to [-32768, 32767].
+    /// 16-bit signed PCM: `round(x * 32768)`, clamped to [-32768, 32767] (the decoder's
+    /// scale, [`crate::dsp::pcm16`]).
     #[default]
     Pcm16,
     /// 32-bit IEEE float.

@@ -24,9 +24,16 @@
 //! 5. Activity factor = long-term power / active power (clause 3), i.e.
 //!    `(E / N) / 10^(level / 10)`.
 //!
-//! The time constant `T`, hangover `H` and margin `M` are the values of P.56 clause 8.3.
-//! The clause numbers refer to the 12/2011 edition (its table of contents was checked); the
-//! algorithm is written from memory of the standard's text, not copied from a listing.
+//! The time constant `T`, hangover `H` and margin `M` are the values of P.56 clause 8.3
+//! ("Values of the parameters"). The clause numbers refer to the 12/2011 edition (its
+//! table of contents was checked). The values T = 0.03 s, H = 0.20 s, M = 15.9 dB, the
+//! hangover length `round(H f_s)`, the cascade of two first-order averages with
+//! `g = exp(-1 / (f_s T))` and the thresholds (below) were checked against the ITU-T's own
+//! realization of P.56, module sv-p56 (v2.3, 2005) of the ITU-T G.191 Software Tool
+//! Library; the recommendation's text itself could not be opened here. The algorithm is
+//! our own writing of the method, not a copy of that listing. One difference: between the
+//! two bracketing thresholds the G.191 module searches by bisection to a 0.5 dB tolerance,
+//! where step 4 above solves the linear interpolation exactly.
 //!
 //! # Scale and thresholds
 //!
@@ -36,9 +43,9 @@
 //! word; not the AES "dBFS" in which a full-scale sine reads 0).
 //!
 //! The standard's realization for 16-bit words uses thresholds spaced by a factor of two
-//! (6.02 dB), one per bit, i.e. `c_j = 2^j` for `j = 0..=15` in integer units (from
-//! memory of the standard's realization, not checked against its text). A 16-bit value `v`
-//! is the float `v / 32768`, so these are `2^-15 ..= 2^0` here. The set is extended, keeping
+//! (6.02 dB), one per bit: 15 of them, from one quantizing step up to half the largest
+//! code, `c_j = 2^j` for `j = 0..=14` in integer units (ITU-T G.191, sv-p56, as above). A
+//! 16-bit value `v` is the float `v / 32768`, so these are `2^-15 ..= 2^-1` here. The set is extended, keeping
 //! the factor-two spacing, down to `2^-32` and up to `2^4`: floats carry levels far below
 //! the 16-bit floor and may exceed full scale before a clipping guard. The extension does
 //! not move the result for any signal the 16-bit set can measure: a threshold at least
@@ -49,14 +56,14 @@
 //! crosses a power of two (the activity counts are kept as runs, not updated per threshold
 //! per sample), no allocation.
 
-/// Envelope time constant `T` in seconds (P.56 clause 8.3).
+/// Envelope time constant `T` in seconds (P.56 clause 8.3; ITU-T G.191 sv-p56: 0.03 s).
 pub const TIME_CONSTANT_S: f64 = 0.03;
 
-/// Hangover time `H` in seconds (P.56 clause 8.3).
+/// Hangover time `H` in seconds (P.56 clause 8.3; ITU-T G.191 sv-p56: 0.20 s).
 pub const HANGOVER_S: f64 = 0.2;
 
 /// Margin `M` in dB between the active level and the threshold that decides activity
-/// (P.56 clause 8.3).
+/// (P.56 clause 8.3; ITU-T G.191 sv-p56: 15.9 dB).
 pub const MARGIN_DB: f64 = 15.9;
 
 /// The lowest threshold is `2^LOWEST_EXPONENT` (full scale 1.0): about -192.7 dB, so active

@@ -20,6 +20,8 @@
 //! assert_eq!(alaw_to_linear(0xAA), 32_256);
 //! ```
 
+use super::pcm16;
+
 /// mu-law bias in 14-bit units (G.711: decision values are offset by 33 before segmenting).
 const ULAW_BIAS: i32 = 33;
 /// Largest 14-bit magnitude coded before saturation: with the bias it reaches 8192, the top
@@ -91,28 +93,22 @@ pub fn alaw_to_linear(code: u8) -> i16 {
     (if positive { magnitude } else { -magnitude }) as i16
 }
 
-/// A float sample in [-1, 1] as 16-bit: `round(x * 32767)`, clamped to the i16 range.
-fn to_i16(x: f32) -> i16 {
-    (f64::from(x) * 32767.0)
-        .round()
-        .clamp(f64::from(i16::MIN), f64::from(i16::MAX)) as i16
-}
-
 /// Pass samples through a mu-law encoder and decoder.
 ///
-/// Scaling: each sample becomes `round(x * 32767)` clamped to i16, is coded and decoded,
-/// and comes back as `y / 32768`. The gain through the pair is therefore 32767/32768
-/// (-0.0003 dB) on top of the companding error; a non-finite sample becomes 0 (NaN) or
-/// full scale (infinities).
+/// Scaling: each sample becomes a 16-bit code by the one PCM scale of
+/// [`crate::dsp::pcm16`] (`round(x * 32768)`, clamped), is coded and decoded, and comes
+/// back as `y / 32768`: a sample read from a 16-bit file passes exactly as `audioop` would
+/// pass its code, with no gain. A non-finite sample becomes 0 (NaN) or full scale
+/// (infinities).
 pub fn ulaw_round_trip(x: &[f32]) -> Vec<f32> {
     x.iter()
-        .map(|&s| f32::from(ulaw_to_linear(linear_to_ulaw(to_i16(s)))) / 32768.0)
+        .map(|&s| pcm16::to_f32(ulaw_to_linear(linear_to_ulaw(pcm16::to_i16(s)))))
         .collect()
 }
 
 /// Pass samples through an A-law encoder and decoder, scaled as in [`ulaw_round_trip`].
 pub fn alaw_round_trip(x: &[f32]) -> Vec<f32> {
     x.iter()
-        .map(|&s| f32::from(alaw_to_linear(linear_to_alaw(to_i16(s)))) / 32768.0)
+        .map(|&s| pcm16::to_f32(alaw_to_linear(linear_to_alaw(pcm16::to_i16(s)))))
         .collect()
 }

@@ -9,6 +9,7 @@ pub mod level;
 pub mod loudness;
 pub mod mel;
 pub mod mix;
+pub mod pcm16;
 pub mod resample;
 pub mod rt60;
 pub mod stft;

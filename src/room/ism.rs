@@ -18,7 +18,8 @@
 //! - **Late field.** With [`LateField::Images`] every image whose delay falls inside the
 //!   response (plus the kernel's half width) is included, whatever its order. With
 //!   [`LateField::Diffuse`] (the default) only those up to the end of the crossfade after
-//!   the transition time [`super::late::transition_s`]; the diffuse tail follows. The
+//!   the transition time [`super::late::transition_s`] (counted from the direct sound);
+//!   the diffuse tail follows. The
 //!   diffuse tail is skipped, leaving pure images, when the transition does not fall
 //!   inside the response or the walls absorb everything (alpha = 1: Eyring's RT60 is 0).
 //! - **Length.** The response is `max_len_s` long, or shorter: it ends once every later
@@ -210,7 +211,9 @@ pub fn impulse_response_with(
     let eyring_s = super::absorption::eyring_rt60(room.dims_m, room.absorption, c)?;
     let join = match params.late {
         LateField::Images => None,
-        LateField::Diffuse if eyring_s > 0.0 => late::Join::for_room(room.dims_m, fs, len),
+        LateField::Diffuse if eyring_s > 0.0 => {
+            late::Join::for_room(room.dims_m, direct_s, fs, len)
+        }
         LateField::Diffuse => None,
     };
     // Images whose kernel still touches the last sample that needs them.

@@ -11,14 +11,22 @@
 //! simulated room decay as Eyring predicts while the early reflections stay exact.
 //!
 //! How, for a response `h` of the image sum (before the high-pass):
-//! - **Transition** at `t_x = max(50 ms, 3·sqrt(V / 1 m³) ms)` ([`transition_s`]).
+//! - **Transition** at `t_x = t_d + max(50 ms, 3·sqrt(V / 1 m³) ms)` ([`transition_s`]),
+//!   `t_d` the direct path's delay: the exact part is counted from the direct sound, so it
+//!   always holds the direct path and the first reflections, however far the microphone
+//!   stands from the source. (Counted from the source's emission instead, a microphone
+//!   more than 50 ms of travel away in a long corridor got a response with no direct path
+//!   at all: the window before `t_x` was silent, the tail was skipped and the response was
+//!   all zeros, which the `room` step's direct-path normalisation turned into NaN.)
 //!   `sqrt(V)` ms is the usual rule of thumb for the mixing time after which a room's
 //!   reflections are dense (from memory; a rule of thumb, not a standard). Three times it,
 //!   and never less than 50 ms, is our choice, made for the level match below: images
 //!   arrive at a rate of `4π c³ t² / V` per second (one image per room-sized cell of the
 //!   mirror lattice), so at `t = k·sqrt(V)` ms the rate is `4π c³ k² 10⁻⁶` per second,
 //!   whatever the volume: about 4 600 per second at `k = 3` (c = 343 m/s), 46 images in
-//!   the 10 ms matching window. Fewer images make the measured level a noisy estimate.
+//!   the 10 ms matching window; at `t_x`, later by `t_d`, there are more. Fewer images
+//!   make the measured level a noisy estimate. The 50 ms leave the 10 ms window clear of
+//!   the direct path's kernel (±16 samples, 2 ms at 8 kHz) and of the first reflections.
 //! - **Level.** The tail's power envelope is `P₀ · 10^(-6 (t - t_x) / T)`, `T` Eyring's
 //!   RT60, with `P₀` chosen so that the envelope's mean over the [`MATCH_WINDOW_S`] window
 //!   just before `t_x` equals the variance of the image sum over that window (its mean
@@ -60,11 +68,11 @@ pub const MATCH_WINDOW_S: f64 = 0.010;
 pub const CROSSFADE_S: f64 = 0.005;
 
 /// The time at which the diffuse tail takes over from the image sum, in seconds after the
-/// source fires: `max(50 ms, 3·sqrt(V) ms)` with `V` the room's volume in m³ (see the
-/// module notes for why).
-pub fn transition_s(dims_m: [f64; 3]) -> f64 {
+/// source fires: `direct_s + max(50 ms, 3·sqrt(V) ms)` with `direct_s` the direct path's
+/// delay and `V` the room's volume in m³ (see the module notes for why).
+pub fn transition_s(dims_m: [f64; 3], direct_s: f64) -> f64 {
     let v = super::volume_m3(dims_m);
-    MIN_TRANSITION_S.max(TRANSITION_PER_SQRT_V * v.sqrt() * 1e-3)
+    direct_s + MIN_TRANSITION_S.max(TRANSITION_PER_SQRT_V * v.sqrt() * 1e-3)
 }
 
 /// The seed of the noise tail: a stable hash of the exact bit patterns of the room's
@@ -97,10 +105,10 @@ pub(crate) struct Join {
 }
 
 impl Join {
-    /// The join for a room at rate `fs`, or `None` when it does not fit before `len`
-    /// samples (the whole response is then image sum).
-    pub(crate) fn for_room(dims_m: [f64; 3], fs: f64, len: usize) -> Option<Join> {
-        let start = (transition_s(dims_m) * fs).round() as usize;
+    /// The join for a room whose direct path takes `direct_s`, at rate `fs`, or `None`
+    /// when it does not fit before `len` samples (the whole response is then image sum).
+    pub(crate) fn for_room(dims_m: [f64; 3], direct_s: f64, fs: f64, len: usize) -> Option<Join> {
+        let start = (transition_s(dims_m, direct_s) * fs).round() as usize;
         let fade = ((CROSSFADE_S * fs).round() as usize).max(1);
         let window = ((MATCH_WINDOW_S * fs).round() as usize).clamp(2, start.max(2));
         (start >= window && start + fade < len).then_some(Join {
@@ -202,10 +210,13 @@ mod tests {
     }
 
     #[test]
-    fn transition_follows_the_volume_above_50_ms() {
-        // 72 m³: 3 sqrt(72) = 25.5 ms, so the 50 ms floor; 1800 m³: 3 · 42.43 = 127.3 ms.
-        assert_eq!(transition_s([6.0, 4.0, 3.0]), 0.050);
-        assert!((transition_s([20.0, 15.0, 6.0]) - 0.127_279).abs() < 1e-6);
+    fn transition_follows_the_volume_above_50_ms_after_the_direct_path() {
+        // 72 m³: 3 sqrt(72) = 25.5 ms, so the 50 ms floor; 1800 m³: 3 · 42.43 = 127.3 ms;
+        // both counted from the direct sound.
+        assert_eq!(transition_s([6.0, 4.0, 3.0], 0.0), 0.050);
+        assert!((transition_s([6.0, 4.0, 3.0], 0.010) - 0.060).abs() < 1e-15);
+        assert!((transition_s([20.0, 15.0, 6.0], 0.0) - 0.127_279).abs() < 1e-6);
+        assert!((transition_s([20.0, 15.0, 6.0], 0.1) - 0.227_279).abs() < 1e-6);
     }
 
     #[test]

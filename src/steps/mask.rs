@@ -25,15 +25,19 @@ use crate::timemap::TimeMap;
 /// on how much of a word may be hidden.
 pub const MAX_REDRAWS: usize = 20;
 
-/// Published SpecAugment policies (Park et al., Interspeech 2019, Table 1; values from
-/// memory of that table): `(name, W, F, mF, T, p, mT)` with `F` in channels of an 80-band
-/// log-mel filterbank, `T` and `W` in 10 ms frames, `p` the largest fraction of the
-/// utterance one time mask may cover.
+/// Published SpecAugment policies: D. S. Park et al., "SpecAugment: A Simple Data
+/// Augmentation Method for Automatic Speech Recognition", Interspeech 2019 (arXiv
+/// 1904.08779), Table 1, "Augmentation parameters for policies": `(name, W, F, mF, T, p,
+/// mT)` with `F` in channels of an 80-band log-mel filterbank, `T` and `W` in 10 ms frames,
+/// `p` the largest fraction of the utterance one time mask may cover. Source status: the
+/// paper's own text could not be opened from here; every value agrees with two
+/// independent recollections of the table and with several public transcriptions of it
+/// (SM and SS share W = 40, T = 70, p = 0.2 and differ only in F, 15 against 27).
 pub const PRESETS: &[(&str, f64, f64, f64, f64, f64, f64)] = &[
     ("LB", 80.0, 27.0, 1.0, 100.0, 1.0, 1.0),
     ("LD", 80.0, 27.0, 2.0, 100.0, 1.0, 2.0),
     ("SM", 40.0, 15.0, 2.0, 70.0, 0.2, 2.0),
-    ("SS", 40.0, 27.0, 2.0, 40.0, 0.2, 2.0),
+    ("SS", 40.0, 27.0, 2.0, 70.0, 0.2, 2.0),
 ];
 /// Mel channels of the filterbank the presets' `F` counts in (Park et al. 2019).
 pub const PRESET_MEL_CHANNELS: f64 = 80.0;

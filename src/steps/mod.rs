@@ -127,10 +127,12 @@ pub trait Step: Send + Sync + std::fmt::Debug {
 /// Run one step on a take. The one place that refuses an empty take (no time map can
 /// describe a take of zero length) or one holding a NaN or infinite sample (no filter,
 /// resampler or level can work on it), so steps need not check; and the one place that
-/// refuses a step's non-finite result, naming the step.
+/// checks every result (audio and stems) for NaN and infinite samples, so a reject names
+/// the step that made them.
 ///
 /// # Errors
-/// An empty or non-finite take, the step's own error, or a non-finite result.
+/// An empty or non-finite take, the step's own error, or a result (audio or stem) holding
+/// a sample that is not finite.
 pub fn run_step(
     step: &dyn Step,
     audio: Audio,
@@ -149,14 +151,23 @@ pub fn run_step(
             "sample {i} of the take is not finite before this step"
         )));
     }
-    let done = step.apply(audio, take, rng)?;
-    if let Some(i) = first_non_finite(&done.audio) {
-        return Err(fail(format!(
-            "made a non-finite sample {i} (at {:.4} s)",
-            i as f64 / f64::from(done.audio.rate)
-        )));
+    let out = step.apply(audio, take, rng)?;
+    let signals = std::iter::once(("", &out.audio)).chain(out.stems.iter().map(|(n, a)| (*n, a)));
+    for (stem, signal) in signals {
+        if let Some(i) = first_non_finite(signal) {
+            let what = if stem.is_empty() {
+                String::from("its result")
+            } else {
+                format!("its {stem} stem")
+            };
+            return Err(fail(format!(
+                "sample {i} (at {:.4} s) of {what} is not finite ({})",
+                i as f64 / f64::from(signal.rate),
+                signal.samples[i]
+            )));
+        }
     }
-    Ok(done)
+    Ok(out)
 }
 
 fn first_non_finite(audio: &Audio) -> Option<usize> {
@@ -189,4 +200,50 @@ pub fn parser(name: &str) -> Option<ParseFn> {
 /// All step names, in registry order.
 pub fn names() -> Vec<&'static str> {
     REGISTRY.iter().map(|(n, _)| *n).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A step that turns one sample into NaN, as a broken model would.
+    #[derive(Debug)]
+    struct Broken;
+
+    impl Step for Broken {
+        fn name(&self) -> &'static str {
+            "broken"
+        }
+
+        fn apply(
+            &self,
+            mut audio: Audio,
+            _take: &TakeContext<'_>,
+            _rng: &mut TakeRng,
+        ) -> Result<StepOutput, StepError> {
+            let d = audio.duration();
+            audio.samples[3] = f32::NAN;
+            Ok(StepOutput::new(audio, TimeMap::identity(d)))
+        }
+    }
+
+    #[test]
+    fn a_non_finite_result_names_the_step_and_the_sample() {
+        let audio = Audio {
+            rate: 8_000,
+            samples: vec![0.25; 10],
+        };
+        let e = run_step(
+            &Broken,
+            audio,
+            &TakeContext::default(),
+            &mut TakeRng::new(1),
+        )
+        .unwrap_err();
+        assert_eq!(e.step, "broken");
+        assert!(
+            e.reason.contains("sample 3 (at ") && e.reason.contains("of its result is not finite"),
+            "{e}"
+        );
+    }
 }

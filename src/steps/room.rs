@@ -3,8 +3,8 @@
 //! timing kept on the words.
 //!
 //! Convolution delays the speech by the direct-path delay. The step finds the direct path
-//! (from the geometry for a simulated room, the response's largest peak for a measured one)
-//! and either trims that delay from the output (`align =
+//! (a measured response's largest peak; a simulated room's geometric delay, distance / c,
+//! since in a long room grazing reflections can pile up higher than it) and either trims that delay from the output (`align =
 //! "trim"`: timings do not move) or keeps it and shifts every timing by it (`align =
 //! "shift"`). The reverberant tail past the input's end is cut (`tail = "cut"`, the default)
 //! or kept (`tail = "keep"`); timings stay inside the audio either way.
@@ -21,8 +21,9 @@ use crate::dsp::rt60::rt60;
 use crate::noise::load_bank;
 use crate::recipe::{Draw, Params, RecipeError};
 use crate::room::absorption::{alpha_for_rt60_eyring, alpha_for_rt60_sabine};
-use crate::room::ism::direct_delay_s;
-use crate::room::{RoomCache, Shoebox, impulse_response, place};
+use crate::room::{
+    Placement, RoomCache, Shoebox, direct_delay_s, distance_m, impulse_response, place,
+};
 use crate::seed::TakeRng;
 use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};
 use crate::timemap::TimeMap;
@@ -263,9 +264,18 @@ fn direct_and_reverberant(h: &[f32], peak_at: usize, rate: u32) -> (f64, f64) {
     (e(&h[a..b]), e(&h[..a]) + e(&h[b..]))
 }
 
-/// A response, its RT60 when known, and the sample of its direct path when known (simulated
-/// rooms; for a measured one it is taken to be the largest peak).
-type Response = (Arc<Vec<f32>>, Option<f64>, Option<usize>);
+/// A take's response: its samples, its measured RT60 and its direct path.
+type Response = (Arc<Vec<f32>>, Option<f64>, Direct);
+
+/// Where the direct path of a response lies and how strong it is.
+#[derive(Debug, Clone, Copy)]
+struct Direct {
+    /// Its sample: the largest sample of a measured response, the sample nearest the
+    /// geometric delay of a simulated one.
+    at: usize,
+    /// Its amplitude: that sample's magnitude (measured), 1/(4π d) (simulated).
+    amplitude: f64,
+}
 
 fn argmax_abs(h: &[f32]) -> usize {
     let mut best = 0;
@@ -278,7 +288,26 @@ fn argmax_abs(h: &[f32]) -> usize {
 }
 
 impl Room {
-    /// The response for this take and what it is: (samples, name or room, RT60).
+    /// A response shorter than its own direct path holds no sound: such a take is reported
+    /// with the key that limits the length.
+    fn check_direct_path(&self, at: &Placement) -> Result<(), StepError> {
+        let delay_s = direct_delay_s(at, SPEED_OF_SOUND);
+        if delay_s < self.max_ir_s {
+            return Ok(());
+        }
+        Err(StepError {
+            step: "room",
+            reason: format!(
+                "the direct path from source to microphone is {:.2} m ({delay_s:.3} s at \
+                 {SPEED_OF_SOUND} m/s), not shorter than max_ir_s = {} s: raise max_ir_s \
+                 or draw smaller rooms",
+                distance_m(at),
+                self.max_ir_s
+            ),
+        })
+    }
+
+    /// The response for this take, its RT60 and its direct path.
     fn response(
         &self,
         rng: &mut TakeRng,
@@ -292,7 +321,9 @@ impl Room {
                     .insert("irs".into(), Value::from(self.folder.clone()));
                 out.drawn
                     .insert("file".into(), Value::from(ir.rel_path.clone()));
-                Ok((ir.samples.clone(), ir.rt60_s, None))
+                let at = argmax_abs(&ir.samples);
+                let amplitude = f64::from(ir.samples[at].abs());
+                Ok((ir.samples.clone(), ir.rt60_s, Direct { at, amplitude }))
             }
             Source::Simulated(sim) => {
                 let dims = [
@@ -330,6 +361,7 @@ impl Room {
                     rng.unit(),
                 ];
                 let at = place(&room, sim.wall_gap_m, u).map_err(err)?;
+                self.check_direct_path(&at)?;
                 out.drawn
                     .insert("dims_m".into(), Value::from(dims.to_vec()));
                 out.drawn.insert("absorption".into(), Value::from(alpha));
@@ -344,10 +376,14 @@ impl Room {
                     })
                     .map_err(err)?;
                 let t60 = rt60(&h, rate);
-                // The direct path's sample is known from the geometry; a reflection can sum
-                // to a larger peak when the source sits near walls.
-                let direct = (direct_delay_s(&at, SPEED_OF_SOUND) * f64::from(rate)).round();
-                Ok((h, t60, Some(direct as usize)))
+                // The geometry gives the direct path: its pulse is centred at d/c and has
+                // amplitude 1/(4π d). (In a long room the largest sample can be a pile of
+                // grazing reflections arriving tens of ms later.)
+                let direct = Direct {
+                    at: (direct_delay_s(&at, SPEED_OF_SOUND) * f64::from(rate)).round() as usize,
+                    amplitude: 1.0 / (4.0 * std::f64::consts::PI * distance_m(&at)),
+                };
+                Ok((h, t60, direct))
             }
         }
     }
@@ -384,9 +420,7 @@ impl Step for Room {
         let drr_draw = self.drr_db.as_ref().map(|d| d.sample(rng));
         let (h, t60, direct) = self.response(rng, rate, &mut out)?;
         let mut h: Vec<f32> = h.as_ref().clone();
-        let peak_at = direct
-            .filter(|&i| i < h.len())
-            .unwrap_or_else(|| argmax_abs(&h));
+        let peak_at = direct.at;
         let (e_direct, e_reverb) = direct_and_reverberant(&h, peak_at, rate);
         if let Some(drr) = drr_draw {
             out.drawn.insert("drr_db".into(), Value::from(drr));
@@ -401,8 +435,17 @@ impl Step for Room {
                 }
             }
         }
+        if !(direct.amplitude.is_finite() && direct.amplitude > 0.0) {
+            return Err(StepError {
+                step: "room",
+                reason: format!(
+                    "the response's direct path has amplitude {}",
+                    direct.amplitude
+                ),
+            });
+        }
         let scale = match self.normalise {
-            Normalise::Direct => 1.0 / f64::from(h[peak_at].abs()),
+            Normalise::Direct => 1.0 / direct.amplitude,
             Normalise::Energy => {
                 1.0 / h
                     .iter()

@@ -126,7 +126,8 @@ pub fn read_jsonl(path: &Path) -> Vec<serde_json::Value> {
         .collect()
 }
 
-/// A mono 16-bit WAV of `samples` (rounded, x · 32767).
+/// A mono 16-bit WAV of `samples` (rounded, x · 32768 clamped: the scale the decoder reads
+/// with, so a sample on the 16-bit grid reads back exactly).
 pub fn write_wav_pcm16(path: &Path, rate: u32, samples: &[f32]) {
     let spec = hound::WavSpec {
         channels: 1,
@@ -136,7 +137,7 @@ pub fn write_wav_pcm16(path: &Path, rate: u32, samples: &[f32]) {
     };
     let mut w = hound::WavWriter::create(path, spec).expect("create wav");
     for &s in samples {
-        w.write_sample((s * 32767.0).round() as i16)
+        w.write_sample((s * 32768.0).round() as i16)
             .expect("write sample");
     }
     w.finalize().expect("finish wav");
@@ -309,3 +310,15 @@ pub fn files_under(dir: &Path) -> Vec<(String, Vec<u8>)> {
     out.sort();
     out
 }
+/// Python's `audioop` (standard library, deprecated but present in 3.11) set up on every
+/// 16-bit value: `data` holds -32768..=32767 as little-endian int16 bytes. A reference
+/// script appends what it computes from it.
+pub const AUDIOOP_EVERY_PCM16: &str = r#"
+import array, sys, warnings
+warnings.simplefilter("ignore")
+import audioop
+pcm = array.array("h", range(-32768, 32768))
+if sys.byteorder != "little":
+    pcm.byteswap()
+data = pcm.tobytes()
+"#;
