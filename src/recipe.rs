@@ -96,6 +96,8 @@ pub struct PlannedStep {
     pub step: Box<dyn Step>,
     /// Probability in [0, 1] that the step runs in a given take.
     pub chance: f64,
+    /// The step's keys and values as the recipe writes them (`do` left out), by key name.
+    pub written: Vec<(String, String)>,
 }
 
 /// A recipe, fully checked.
@@ -158,6 +160,8 @@ pub struct Params<'a> {
     label: String,
     table: &'a DeTable<'a>,
     table_line: usize,
+    /// The keys this kind of step reads, from the step registry.
+    keys: &'static [&'static str],
     taken: BTreeSet<String>,
     warnings: Vec<String>,
 }
@@ -206,7 +210,12 @@ impl<'a> Params<'a> {
         self.table.iter().find(|(k, _)| k.get_ref() == key)
     }
 
-    fn take(&mut self, key: &str) -> Option<&'a Spanned<DeValue<'a>>> {
+    fn take(&mut self, key: &'static str) -> Option<&'a Spanned<DeValue<'a>>> {
+        debug_assert!(
+            key == "chance" || self.keys.contains(&key),
+            "{}: the parser reads `{key}`, which the step registry does not list",
+            self.label
+        );
         let found = self.find(key).map(|(_, v)| v);
         if found.is_some() {
             self.taken.insert(key.to_string());
@@ -215,7 +224,12 @@ impl<'a> Params<'a> {
     }
 
     /// Whether the step's table has `key` (without taking it).
-    pub fn has(&self, key: &str) -> bool {
+    pub fn has(&mut self, key: &'static str) -> bool {
+        debug_assert!(
+            self.keys.contains(&key),
+            "{}: the parser reads `{key}`, which the step registry does not list",
+            self.label
+        );
         self.find(key).is_some()
     }
 
@@ -223,9 +237,9 @@ impl<'a> Params<'a> {
     ///
     /// # Errors
     /// A value that is not a number, a list of numbers or `{ low, high }` with low <= high.
-    pub fn draw(&mut self, key: &str, default: Option<Draw>) -> Result<Draw, RecipeError> {
+    pub fn draw(&mut self, key: &'static str, default: Option<Draw>) -> Result<Draw, RecipeError> {
         match self.take(key) {
-            None => default.ok_or_else(|| self.error(key, "missing; this step needs it")),
+            None => default.ok_or_else(|| self.missing(key)),
             Some(v) => parse_draw(v.get_ref()).map_err(|m| self.error(key, m)),
         }
     }
@@ -237,7 +251,7 @@ impl<'a> Params<'a> {
     /// As [`Params::draw`], or a draw that can give a value outside the limits.
     pub fn draw_within(
         &mut self,
-        key: &str,
+        key: &'static str,
         default: Option<Draw>,
         (lo, hi): (f64, f64),
         unit: &str,
@@ -263,11 +277,55 @@ impl<'a> Params<'a> {
         ))
     }
 
+    /// The error for a required `key` that is absent: when the table holds an unknown key
+    /// close to it (`factr` for `factor`), the error is about that key, on its line.
+    fn missing(&self, key: &'static str) -> RecipeError {
+        let near = self.table.iter().find(|(k, _)| {
+            let name: &str = k.get_ref().as_ref();
+            !self.keys.contains(&name) && name != "do" && name != "chance" && close(name, key)
+        });
+        match near {
+            Some((k, _)) => self.ctx.err(
+                Some(self.ctx.line_of(k.span().start)),
+                format!(
+                    "{}: unknown key `{}`; did you mean `{key}`? (this step needs `{key}`)",
+                    self.label,
+                    k.get_ref().as_ref() as &str
+                ),
+            ),
+            None => self.error(key, "missing; this step needs it"),
+        }
+    }
+
+    /// A whole number under `key` (or `default`) in `[lo, hi]`; `unit` names what it counts.
+    ///
+    /// # Errors
+    /// A value that is not a number, has a fractional part, or lies outside the limits.
+    pub fn whole(
+        &mut self,
+        key: &'static str,
+        default: usize,
+        (lo, hi): (usize, usize),
+        unit: &str,
+    ) -> Result<usize, RecipeError> {
+        #[allow(clippy::cast_precision_loss)]
+        let v = self.number(key, default as f64)?;
+        if v.fract() != 0.0 {
+            return Err(self.error(key, format!("{v} is not a whole number of {unit}")));
+        }
+        #[allow(clippy::cast_precision_loss)]
+        if v < lo as f64 || v > hi as f64 {
+            return Err(self.error(key, format!("{v} is outside [{lo}, {hi}] {unit}")));
+        }
+        #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+        Ok(v as usize)
+    }
+
     /// A single number under `key`, or `default` when absent.
     ///
     /// # Errors
     /// A value that is not a finite number.
-    pub fn number(&mut self, key: &str, default: f64) -> Result<f64, RecipeError> {
+    pub fn number(&mut self, key: &'static str, default: f64) -> Result<f64, RecipeError> {
         match self.take(key) {
             None => Ok(default),
             Some(v) => number(v.get_ref()).map_err(|m| self.error(key, m)),
@@ -278,7 +336,7 @@ impl<'a> Params<'a> {
     ///
     /// # Errors
     /// A value that is not a string.
-    pub fn text(&mut self, key: &str) -> Result<Option<String>, RecipeError> {
+    pub fn text(&mut self, key: &'static str) -> Result<Option<String>, RecipeError> {
         match self.take(key) {
             None => Ok(None),
             Some(v) => match v.get_ref().as_str() {
@@ -297,7 +355,7 @@ impl<'a> Params<'a> {
     /// A value that is not one of `allowed`.
     pub fn choice(
         &mut self,
-        key: &str,
+        key: &'static str,
         allowed: &[&'static str],
         default: &'static str,
     ) -> Result<&'static str, RecipeError> {
@@ -321,7 +379,7 @@ impl<'a> Params<'a> {
     ///
     /// # Errors
     /// A value that is not `true` or `false`.
-    pub fn flag(&mut self, key: &str, default: bool) -> Result<bool, RecipeError> {
+    pub fn flag(&mut self, key: &'static str, default: bool) -> Result<bool, RecipeError> {
         match self.take(key) {
             None => Ok(default),
             Some(v) => v
@@ -335,7 +393,10 @@ impl<'a> Params<'a> {
     ///
     /// # Errors
     /// A value that is not a table of numbers, or a weight that is zero or negative.
-    pub fn weights(&mut self, key: &str) -> Result<Option<Vec<(String, f64)>>, RecipeError> {
+    pub fn weights(
+        &mut self,
+        key: &'static str,
+    ) -> Result<Option<Vec<(String, f64)>>, RecipeError> {
         let Some(v) = self.take(key) else {
             return Ok(None);
         };
@@ -376,12 +437,18 @@ impl<'a> Params<'a> {
         for (k, _) in self.table.iter() {
             let name = k.get_ref().as_ref();
             if name != "do" && name != "chance" && !self.taken.contains(name) {
-                let mut known: Vec<&str> = self.taken.iter().map(String::as_str).collect();
+                let mut known: Vec<&str> = self.keys.to_vec();
                 known.extend(["do", "chance"]);
+                let hint = known
+                    .iter()
+                    .filter(|k| !self.taken.contains(**k) && close(name, k))
+                    .min_by_key(|k| strsim::levenshtein(name, k))
+                    .map(|k| format!("; did you mean `{k}`?"))
+                    .unwrap_or_default();
                 return Err(self.ctx.err(
                     Some(self.ctx.line_of(k.span().start)),
                     format!(
-                        "{}: unknown key `{name}` (this step reads: {})",
+                        "{}: unknown key `{name}`{hint} (this step reads: {})",
                         self.label,
                         known.join(", ")
                     ),
@@ -390,6 +457,26 @@ impl<'a> Params<'a> {
         }
         Ok(())
     }
+}
+
+/// The TOML parser's message in the user's terms: a duplicate key is named.
+fn syntax_message(message: &str, at: Option<&str>) -> String {
+    match at {
+        Some(key) if message.starts_with("duplicate key") && !key.trim().is_empty() => {
+            format!(
+                "duplicate key `{}`: each key may be given once per table",
+                key.trim().trim_matches('"')
+            )
+        }
+        _ => message.to_string(),
+    }
+}
+
+/// Whether a misspelt key `given` is close enough to `known` to suggest it: at most two
+/// edits, and fewer than a third of the longer name (so `db` does not suggest `bits`).
+fn close(given: &str, known: &str) -> bool {
+    let d = strsim::levenshtein(given, known);
+    d <= 2 && 3 * d < given.len().max(known.len())
 }
 
 fn number(v: &DeValue<'_>) -> Result<f64, String> {
@@ -492,7 +579,10 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
     let ctx = Ctx { path, text };
     let doc = DeTable::parse(text).map_err(|e| {
         let line = e.span().map(|s| ctx.line_of(s.start));
-        ctx.err(line, e.message().to_string())
+        ctx.err(
+            line,
+            syntax_message(e.message(), e.span().map(|s| &text[s])),
+        )
     })?;
     let doc = doc.get_ref();
     let at = |key: &str| -> Option<(usize, &Spanned<DeValue<'_>>)> {
@@ -608,11 +698,17 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
                     format!("step {}: do: expected a step name", i + 1),
                 ));
             };
-            let Some(parser) = steps::parser(name) else {
+            let Some(kind_row) = steps::kind(name) else {
+                let hint = steps::names()
+                    .into_iter()
+                    .filter(|n| close(name, n))
+                    .min_by_key(|n| strsim::levenshtein(name, n))
+                    .map(|n| format!("; did you mean `{n}`?"))
+                    .unwrap_or_default();
                 return Err(ctx.err(
                     Some(kind_line),
                     format!(
-                        "step {}: do: unknown step `{name}` (one of: {})",
+                        "step {}: do: unknown step `{name}`{hint} (one of: {})",
                         i + 1,
                         steps::names().join(", ")
                     ),
@@ -623,6 +719,7 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
                 label: format!("step {} ({name})", i + 1),
                 table,
                 table_line: item_line,
+                keys: kind_row.keys,
                 taken: BTreeSet::new(),
                 warnings: Vec::new(),
             };
@@ -636,7 +733,15 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
                     c
                 }
             };
-            let step = parser(
+            let written = table
+                .iter()
+                .filter(|(k, _)| k.get_ref() != "do")
+                .map(|(k, v)| {
+                    let value = text.get(v.span()).unwrap_or("").trim().to_string();
+                    (k.get_ref().to_string(), value)
+                })
+                .collect();
+            let step = (kind_row.parse)(
                 &mut params,
                 &steps::PlanContext {
                     rate,
@@ -646,7 +751,11 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
             )?;
             warnings.append(&mut params.warnings);
             params.finish()?;
-            planned.push(PlannedStep { step, chance });
+            planned.push(PlannedStep {
+                step,
+                chance,
+                written,
+            });
         }
     }
     Ok(Plan {

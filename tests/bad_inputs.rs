@@ -5,8 +5,8 @@
 //! A new case is one row in [`cases`]: the files to put in a fresh folder, the command, the
 //! exit code, and what the output must say. `{d}` in a command or fragment stands for the
 //! folder. The output searched is stdout, stderr and, after `run`, `out/rejects.jsonl`.
-//! Exit codes: 0 done, 1 the command could not finish (or found problems, for `check`),
-//! 2 the command line or recipe is wrong, 3 done with rejects (README, "Exit status").
+//! Exit codes: 0 done, 1 the command could not finish, 2 the command line or recipe is
+//! wrong, 3 done with rejects (or found problems, for `check`) (README, "Exit status").
 
 mod common;
 
@@ -137,7 +137,7 @@ const RUN: [&str; 6] = [
 ];
 
 fn check_row(name: &'static str, manifest: &str) -> Case {
-    case(name, &CHECK, 1).manifest(manifest)
+    case(name, &CHECK, 3).manifest(manifest)
 }
 
 fn run_row(name: &'static str, manifest: &str) -> Case {
@@ -243,11 +243,11 @@ fn cases() -> Vec<Case> {
         check_row("whitespace line", &format!("{GOOD}\n   \t\n"))
             .at("in.jsonl", Some(2), None)
             .says("empty line"),
-        case("byte 0xFF on line 2", &CHECK, 1)
+        case("byte 0xFF on line 2", &CHECK, 3)
             .with("in.jsonl", Body::Bytes([GOOD.as_bytes(), b"\n{\"id\":\"b\xff\"}\n"].concat()))
             .at("in.jsonl", Some(2), None)
             .says("not UTF-8 text: byte 0xFF at column 9"),
-        case("Latin-1 text on line 1", &CHECK, 1)
+        case("Latin-1 text on line 1", &CHECK, 3)
             .with("in.jsonl", Body::Bytes(good_with("bay three", "cafX").replace('X', "\u{1}").into_bytes().into_iter().map(|b| if b == 1 { 0xE9 } else { b }).collect()))
             .at("in.jsonl", Some(1), None)
             .says("not UTF-8"),
@@ -283,7 +283,7 @@ fn cases() -> Vec<Case> {
         check_row("audio is text", &good_with("a.wav", "notes.wav"))
             .with("notes.wav", Body::Text("not audio at all\n".into()))
             .at("in.jsonl", Some(1), Some("audio"))
-            .says("notes.wav: cannot decode"),
+            .says("notes.wav: cannot decode: not an audio format retake reads"),
         check_row("audio file of 0 bytes", &good_with("a.wav", "zero.wav"))
             .with("zero.wav", Body::Bytes(Vec::new()))
             .at("in.jsonl", Some(1), Some("audio"))
@@ -350,10 +350,10 @@ fn cases() -> Vec<Case> {
         case("recipe given as the manifest", &["check", "{d}/recipe.toml"], 1)
             .at("recipe.toml", None, None)
             .says("not a JSON Lines manifest: it is a TOML file"),
-        check_row("TOML inside a .jsonl", RECIPE)
+        case("TOML inside a .jsonl", &CHECK, 1).manifest(RECIPE)
             .at("in.jsonl", None, None)
             .says("it is a TOML file (a recipe?)"),
-        check_row("one JSON document over lines", "{\n  \"id\": \"a\",\n  \"audio\": \"a.wav\",\n  \"text\": \"x\"\n}\n")
+        case("one JSON document over lines", &CHECK, 1).manifest("{\n  \"id\": \"a\",\n  \"audio\": \"a.wav\",\n  \"text\": \"x\"\n}\n")
             .at("in.jsonl", None, None)
             .says("one JSON document over several lines"),
         case("manifest missing", &["check", "{d}/nothing.jsonl"], 1)
@@ -426,6 +426,37 @@ fn cases() -> Vec<Case> {
             .at("recipe.toml", Some(2), Some("db")),
         recipe_row("recipe: speed out of range", "takes = 1\n[[step]]\ndo = \"speed\"\nfactor = 5.0\n")
             .at("recipe.toml", Some(4), Some("factor")),
+        recipe_row("recipe: mask window 1e12", "takes = 1\n[[step]]\ndo = \"mask\"\nfreq_masks = 1\nwindow = 1e12\n")
+            .at("recipe.toml", Some(5), Some("window"))
+            .says("outside [16, 65536] samples"),
+        recipe_row("recipe: mask window negative", "takes = 1\n[[step]]\ndo = \"mask\"\n\nwindow = -400\n")
+            .at("recipe.toml", Some(5), Some("window"))
+            .says("-400 is outside"),
+        recipe_row("recipe: mask window not whole", "takes = 1\n[[step]]\ndo = \"mask\"\nwindow = 400.5\n")
+            .at("recipe.toml", Some(4), Some("window"))
+            .says("not a whole number"),
+        recipe_row("recipe: mask hop too large", "takes = 1\n[[step]]\ndo = \"mask\"\nhop = 1e9\n")
+            .at("recipe.toml", Some(4), Some("hop")),
+        recipe_row("recipe: mask time width huge", "takes = 1\n[[step]]\ndo = \"mask\"\ntime_masks = 1\ntime_width_s = 1e9\n")
+            .at("recipe.toml", Some(5), Some("time_width_s")),
+        recipe_row("recipe: misspelt required key", "takes = 1\n[[step]]\ndo = \"speed\"\nfactr = 1.1\n")
+            .at("recipe.toml", Some(4), Some("unknown key `factr`"))
+            .says("did you mean `factor`"),
+        recipe_row("recipe: misspelt optional key", "takes = 1\n[[step]]\ndo = \"gain\"\ndb = 1.0\nceilng_db = -1.0\n")
+            .at("recipe.toml", Some(5), Some("unknown key `ceilng_db`"))
+            .says("did you mean `ceiling_db`")
+            .says("this step reads: db, ceiling_db, do, chance"),
+        recipe_row("recipe: duplicate key", "takes = 1\n[[step]]\ndo = \"gain\"\ndb = 1.0\ndb = 2.0\n")
+            .at("recipe.toml", Some(5), Some("duplicate key `db`")),
+        case("cli: -j 0", &["run", "{d}/recipe.toml", "-i", "{d}/in.jsonl", "-o", "{d}/out", "-j", "0"], 2)
+            .manifest(&(GOOD.to_string() + "\n"))
+            .with("recipe.toml", Body::Text(RECIPE.to_string()))
+            .says("from 1 to 1024")
+            .absent("out"),
+        case("cli: -j 100000", &["run", "{d}/recipe.toml", "-i", "{d}/in.jsonl", "-o", "{d}/out", "-j", "100000"], 2)
+            .manifest(&(GOOD.to_string() + "\n"))
+            .with("recipe.toml", Body::Text(RECIPE.to_string()))
+            .says("from 1 to 1024"),
         recipe_row("recipe: manifest given as recipe", &(GOOD.to_string() + "\n"))
             .at("recipe.toml", Some(1), None),
         case("recipe: missing", &["run", "{d}/none.toml", "-i", "{d}/in.jsonl", "-o", "{d}/out"], 2)

@@ -315,7 +315,11 @@ fn check_reports_every_problem_with_line_and_field() {
     ];
     std::fs::write(&manifest, lines.join("\n") + "\n").unwrap();
     let o = retake(&["check", manifest.to_str().unwrap()]);
-    assert_eq!(o.status.code(), Some(1));
+    assert_eq!(
+        o.status.code(),
+        Some(3),
+        "check finding problems exits 3 (README, Exit status)"
+    );
     let err = String::from_utf8_lossy(&o.stderr);
     let m = manifest.display().to_string();
     assert!(
@@ -342,7 +346,7 @@ fn check_reports_every_problem_with_line_and_field() {
     let lines = [line("nan", "nan.wav", WORDS), wrong.to_string()];
     std::fs::write(&manifest, lines.join("\n") + "\n").unwrap();
     let o = retake(&["check", manifest.to_str().unwrap()]);
-    assert_eq!(o.status.code(), Some(1));
+    assert_eq!(o.status.code(), Some(3));
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(
         err.contains(&format!(

@@ -403,6 +403,11 @@ fn opening_error(path: &Path, e: SymError) -> AudioError {
             path: path.to_path_buf(),
             source,
         },
+        // The probe found no container it knows: say so in the user's terms.
+        SymError::Unsupported(_) => decode_err(
+            path,
+            "not an audio format retake reads (WAV, FLAC, MP3, Ogg Vorbis, ...)".to_string(),
+        ),
         other => decode_err(path, other.to_string()),
     }
 }

@@ -3,6 +3,8 @@
 use std::path::Path;
 use std::process::ExitCode;
 
+use super::Exit;
+
 use retake::noise::describe::{BankReport, describe};
 use retake::noise::load_bank;
 
@@ -10,11 +12,11 @@ pub fn bank(dir: &Path, rate: u32, held_out: f64) -> ExitCode {
     match load_bank(dir, rate, held_out) {
         Err(e) => {
             eprintln!("retake: {e}");
-            ExitCode::FAILURE
+            Exit::Failed.into()
         }
         Ok(b) => {
             print!("{}", render(&describe(&b), dir, held_out));
-            ExitCode::SUCCESS
+            Exit::Done.into()
         }
     }
 }

@@ -1,13 +1,15 @@
-//! `retake check`: print one line per problem; exit 0 only when clean.
+//! `retake check`: print one line per problem; exit 0 when clean, 3 when it found problems.
 
 use std::path::Path;
 use std::process::ExitCode;
+
+use super::Exit;
 
 pub fn check(manifest: &Path) -> ExitCode {
     match retake::check::check_manifest(manifest) {
         Err(e) => {
             eprintln!("retake: {}: cannot read manifest: {e}", manifest.display());
-            ExitCode::FAILURE
+            Exit::Failed.into()
         }
         Ok(report) => {
             for p in &report.problems {
@@ -20,7 +22,7 @@ pub fn check(manifest: &Path) -> ExitCode {
                     report.lines,
                     report.seconds
                 );
-                ExitCode::SUCCESS
+                Exit::Done.into()
             } else {
                 eprintln!(
                     "{}: {} problems in {} lines",
@@ -28,7 +30,7 @@ pub fn check(manifest: &Path) -> ExitCode {
                     report.problems.len(),
                     report.lines
                 );
-                ExitCode::FAILURE
+                Exit::DoneWithRejects.into()
             }
         }
     }

@@ -5,6 +5,8 @@
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
+use super::Exit;
+
 use retake::files::write_atomically;
 
 /// The folder under the demo's output folder that receives the demo set.
@@ -45,7 +47,7 @@ pub fn demo(out: &Path, threads: Option<usize>) -> ExitCode {
     let source = out.join(SOURCE_DIR);
     if let Err((path, e)) = write_out(&source) {
         eprintln!("retake: {}: cannot write the demo set: {e}", path.display());
-        return ExitCode::FAILURE;
+        return Exit::Failed.into();
     }
     super::run::run(
         &source.join("recipe.toml"),

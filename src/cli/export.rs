@@ -3,6 +3,8 @@
 use std::path::Path;
 use std::process::ExitCode;
 
+use super::Exit;
+
 use retake::export::{Format, Outcome, export_clip};
 use retake::outdir::FolderLock;
 use retake::transcript::read_manifest;
@@ -12,7 +14,7 @@ pub fn export(manifest: &Path, formats: &[Format], out: Option<&Path>, replace: 
         Ok(m) => m,
         Err(e) => {
             eprintln!("retake: {}: cannot read manifest: {e}", manifest.display());
-            return ExitCode::from(2);
+            return Exit::Usage.into();
         }
     };
     for p in &read.problems {
@@ -24,7 +26,7 @@ pub fn export(manifest: &Path, formats: &[Format], out: Option<&Path>, replace: 
         Ok(l) => l,
         Err(e) => {
             eprintln!("retake: {e}");
-            return ExitCode::FAILURE;
+            return Exit::Failed.into();
         }
     };
     let (mut written, mut untimed, mut failed) = (0, 0, 0);
@@ -75,8 +77,8 @@ pub fn export(manifest: &Path, formats: &[Format], out: Option<&Path>, replace: 
         );
     }
     if kept.len() + failed + read.problems.len() > 0 {
-        ExitCode::from(super::EXIT_REJECTS)
+        Exit::DoneWithRejects.into()
     } else {
-        ExitCode::SUCCESS
+        Exit::Done.into()
     }
 }

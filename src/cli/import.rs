@@ -3,6 +3,8 @@
 use std::path::Path;
 use std::process::ExitCode;
 
+use super::Exit;
+
 use retake::audio::ChannelPolicy;
 use retake::files::write_atomically;
 use retake::import::import_folder;
@@ -16,7 +18,7 @@ pub fn import(dir: &Path, manifest: Option<&Path>, channels: ChannelPolicy) -> E
             "the folder does not exist"
         };
         eprintln!("retake: {}: {what}; nothing imported", dir.display());
-        return ExitCode::from(2);
+        return Exit::Usage.into();
     }
     let default = dir.join("manifest.jsonl");
     let manifest = manifest.unwrap_or(&default);
@@ -24,13 +26,13 @@ pub fn import(dir: &Path, manifest: Option<&Path>, channels: ChannelPolicy) -> E
     let base = base.unwrap_or(Path::new("."));
     if let Err(e) = std::fs::create_dir_all(base) {
         eprintln!("retake: {}: {e}", base.display());
-        return ExitCode::FAILURE;
+        return Exit::Failed.into();
     }
     let found = match import_folder(dir, base, channels) {
         Ok(f) => f,
         Err(e) => {
             eprintln!("retake: {}: cannot read folder: {e}", dir.display());
-            return ExitCode::from(2);
+            return Exit::Usage.into();
         }
     };
     for p in &found.problems {
@@ -44,11 +46,11 @@ pub fn import(dir: &Path, manifest: Option<&Path>, channels: ChannelPolicy) -> E
             "retake: {}: no recording with a usable transcript; nothing written",
             dir.display()
         );
-        return ExitCode::from(2);
+        return Exit::Usage.into();
     }
     if let Err(e) = write_atomically(manifest, |w| write_manifest(w, &found.clips)) {
         eprintln!("retake: {}: {e}", manifest.display());
-        return ExitCode::FAILURE;
+        return Exit::Failed.into();
     }
     let seconds: f64 = found.clips.iter().filter_map(|c| c.duration).sum();
     let timed = found.clips.iter().filter(|c| c.lines.is_some()).count();
@@ -61,13 +63,13 @@ pub fn import(dir: &Path, manifest: Option<&Path>, channels: ChannelPolicy) -> E
     );
     println!("output   {}", manifest.display());
     if found.problems.is_empty() {
-        ExitCode::SUCCESS
+        Exit::Done.into()
     } else {
         println!(
             "left out files with {} problem{} (listed above, each with its file and line)",
             found.problems.len(),
             if found.problems.len() == 1 { "" } else { "s" }
         );
-        ExitCode::from(super::EXIT_REJECTS)
+        Exit::DoneWithRejects.into()
     }
 }

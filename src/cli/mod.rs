@@ -5,6 +5,7 @@ mod check;
 mod demo;
 mod export;
 mod import;
+mod plan;
 mod remap;
 mod run;
 mod slice;
@@ -12,12 +13,41 @@ mod slice;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use clap::{Parser, Subcommand};
+use clap::{CommandFactory, Parser, Subcommand};
 use retake::audio::ChannelPolicy;
 use retake::export::Format;
 
-/// Exit status when the run finished but some clips went to the rejects file.
-pub const EXIT_REJECTS: u8 = 3;
+/// How a command ended; the one place an ending becomes an exit status (the table in the
+/// README's "Exit status" section).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Exit {
+    /// Everything asked for was done: 0.
+    Done,
+    /// The command finished, but some inputs were rejected or had problems: 3.
+    DoneWithRejects,
+    /// The command line or the recipe is wrong; nothing was written: 2.
+    Usage,
+    /// The command could not start or finish (unreadable input, full disk): 1.
+    Failed,
+}
+
+impl Exit {
+    /// The process exit status for this ending.
+    pub fn code(self) -> u8 {
+        match self {
+            Exit::Done => 0,
+            Exit::Failed => 1,
+            Exit::Usage => 2,
+            Exit::DoneWithRejects => 3,
+        }
+    }
+}
+
+impl From<Exit> for ExitCode {
+    fn from(o: Exit) -> ExitCode {
+        ExitCode::from(o.code())
+    }
+}
 
 /// Grow a small, time-aligned speech set into a large augmented one, labels kept aligned.
 #[derive(Debug, Parser)]
@@ -81,13 +111,29 @@ enum Command {
         #[arg(long, short)]
         out: PathBuf,
         /// Worker threads (default: one per core).
-        #[arg(long, short = 'j')]
+        #[arg(long, short = 'j', value_parser = parse_threads)]
         threads: Option<usize>,
         /// Multichannel input: `mix` (mean of channels) or a channel number from 0.
         /// Overrides the recipe's `channels`.
         #[arg(long, value_parser = parse_channels)]
         channels: Option<ChannelPolicy>,
     },
+    /// Check a recipe and print its plan (each step, its values, its chance); writes nothing.
+    Plan {
+        /// The recipe (TOML).
+        recipe: PathBuf,
+    },
+    /// List every step a recipe can use, with the keys it reads.
+    Steps,
+    /// Print a shell completion script (bash, zsh, fish, elvish, powershell) to stdout.
+    ///
+    /// For bash: `retake completions bash > ~/.local/share/bash-completion/completions/retake`.
+    Completions {
+        /// The shell.
+        shell: clap_complete::Shell,
+    },
+    /// Print the manual page (roff) to stdout: `retake manual > retake.1; man ./retake.1`.
+    Manual,
     /// Carry other annotations of the source clips (TSV, WebVTT) to a run's takes.
     ///
     /// Every time goes through the time map stored in each take's `origin`.
@@ -123,7 +169,7 @@ enum Command {
         #[arg(long, short, default_value = "retake-demo")]
         out: PathBuf,
         /// Worker threads (default: one per core).
-        #[arg(long, short = 'j')]
+        #[arg(long, short = 'j', value_parser = parse_threads)]
         threads: Option<usize>,
     },
 }
@@ -159,6 +205,23 @@ pub fn main() -> ExitCode {
             out,
         } => remap::run(&manifest, &labels, &out),
         Command::Demo { out, threads } => demo::demo(&out, threads),
+        Command::Plan { recipe } => plan::plan(&recipe),
+        Command::Steps => plan::steps(),
+        Command::Completions { shell } => {
+            clap_complete::generate(shell, &mut Cli::command(), "retake", &mut std::io::stdout());
+            Exit::Done.into()
+        }
+        Command::Manual => {
+            match clap_mangen::Man::new(Cli::command()).render(&mut std::io::stdout()) {
+                Ok(()) => Exit::Done.into(),
+                // `retake manual | head` closing the pipe early is not a failure.
+                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Exit::Done.into(),
+                Err(e) => {
+                    eprintln!("retake: cannot write the manual: {e}");
+                    Exit::Failed.into()
+                }
+            }
+        }
     }
 }
 
@@ -176,6 +239,16 @@ fn parse_format(s: &str) -> Result<Format, String> {
         "vtt" | "webvtt" => Ok(Format::WebVtt),
         "tsv" => Ok(Format::Tsv),
         _ => Err(format!("`{s}`: expected `vtt` or `tsv`")),
+    }
+}
+
+/// Worker threads: 1 to 1024 (more than any machine this runs on has cores).
+fn parse_threads(s: &str) -> Result<usize, String> {
+    match s.parse::<usize>() {
+        Ok(n) if (1..=1024).contains(&n) => Ok(n),
+        _ => Err(format!(
+            "`{s}`: expected a number of worker threads from 1 to 1024"
+        )),
     }
 }
 

@@ -3,6 +3,8 @@
 use std::path::Path;
 use std::process::ExitCode;
 
+use super::Exit;
+
 use retake::remap::remap;
 use retake::transcript::read_manifest;
 
@@ -11,18 +13,18 @@ pub fn run(manifest: &Path, labels: &Path, out: &Path) -> ExitCode {
         Ok(m) => m,
         Err(e) => {
             eprintln!("retake: {}: cannot read manifest: {e}", manifest.display());
-            return ExitCode::from(2);
+            return Exit::Usage.into();
         }
     };
     if !labels.is_dir() {
         eprintln!("retake: {}: not a folder of annotations", labels.display());
-        return ExitCode::from(2);
+        return Exit::Usage.into();
     }
     let report = match remap(&read, labels, out) {
         Ok(r) => r,
         Err(e) => {
             eprintln!("retake: {}: {e}", out.display());
-            return ExitCode::FAILURE;
+            return Exit::Failed.into();
         }
     };
     for p in &report.problems {
@@ -53,8 +55,8 @@ pub fn run(manifest: &Path, labels: &Path, out: &Path) -> ExitCode {
     // Sources without an annotation are normal (not every clip was phone-labelled): listed,
     // not failed.
     if report.problems.is_empty() {
-        ExitCode::SUCCESS
+        Exit::Done.into()
     } else {
-        ExitCode::from(super::EXIT_REJECTS)
+        Exit::DoneWithRejects.into()
     }
 }

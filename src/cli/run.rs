@@ -3,6 +3,8 @@
 use std::path::Path;
 use std::process::ExitCode;
 
+use super::Exit;
+
 use indicatif::{ProgressBar, ProgressStyle};
 use retake::audio::ChannelPolicy;
 use retake::recipe;
@@ -19,7 +21,7 @@ pub fn run(
         Ok(p) => p,
         Err(e) => {
             eprintln!("retake: recipe error: {e}");
-            return ExitCode::from(2);
+            return Exit::Usage.into();
         }
     };
     if let Some(c) = channels {
@@ -62,17 +64,17 @@ pub fn run(
             eprintln!("retake: {e}");
             // An output over the input is a command line to change; the rest could not run.
             if matches!(e, run::RunError::WouldOverwrite(_)) {
-                ExitCode::from(2)
+                Exit::Usage.into()
             } else {
-                ExitCode::FAILURE
+                Exit::Failed.into()
             }
         }
         Ok(summary) => {
             print_summary(&summary, out);
             if summary.rejected > 0 {
-                ExitCode::from(super::EXIT_REJECTS)
+                Exit::DoneWithRejects.into()
             } else {
-                ExitCode::SUCCESS
+                Exit::Done.into()
             }
         }
     }

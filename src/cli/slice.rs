@@ -3,6 +3,8 @@
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
+use super::Exit;
+
 use retake::audio::{ChannelPolicy, SampleFormat};
 use retake::run::{MANIFEST_NAME, REJECTS_NAME};
 use retake::slice::plan::{Limits, PadRange};
@@ -33,7 +35,7 @@ pub struct SliceArgs {
     #[arg(long)]
     float: bool,
     /// Worker threads (default: one per core).
-    #[arg(long, short = 'j')]
+    #[arg(long, short = 'j', value_parser = super::parse_threads)]
     threads: Option<usize>,
     /// Multichannel input: `mix` (mean of channels) or a channel number from 0.
     #[arg(long, default_value = "mix", value_parser = super::parse_channels)]
@@ -61,7 +63,7 @@ pub fn slice(args: SliceArgs) -> ExitCode {
         Ok(v) => v,
         Err(e) => {
             eprintln!("retake: slice: {e}");
-            return ExitCode::from(2);
+            return Exit::Usage.into();
         }
     };
     let spec = SliceSpec {
@@ -83,17 +85,17 @@ pub fn slice(args: SliceArgs) -> ExitCode {
             eprintln!("retake: {e}");
             // An output over the input is a command line to change; the rest could not run.
             if matches!(e, retake::run::RunError::WouldOverwrite(_)) {
-                ExitCode::from(2)
+                Exit::Usage.into()
             } else {
-                ExitCode::FAILURE
+                Exit::Failed.into()
             }
         }
         Ok(summary) => {
             print_summary(&summary, &args.out);
             if summary.rejected > 0 || summary.left_out > 0 {
-                ExitCode::from(super::EXIT_REJECTS)
+                Exit::DoneWithRejects.into()
             } else {
-                ExitCode::SUCCESS
+                Exit::Done.into()
             }
         }
     }

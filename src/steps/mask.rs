@@ -115,7 +115,15 @@ fn with_stft<R>(config: StftConfig, f: impl FnOnce(&mut Stft) -> R) -> R {
     })
 }
 
-fn count_draw(params: &mut Params<'_>, key: &str, default: f64) -> Result<Draw, RecipeError> {
+/// Window and FFT lengths a recipe may ask for, in samples: 1 ms at 16 kHz up to about
+/// 1.4 s at 48 kHz, so a typo cannot ask for gigabytes before the first clip.
+const FRAME_LIMITS: (usize, usize) = (16, 65_536);
+
+fn count_draw(
+    params: &mut Params<'_>,
+    key: &'static str,
+    default: f64,
+) -> Result<Draw, RecipeError> {
     let d = params.draw_within(key, Some(Draw::Fixed(default)), (0.0, 50.0), "")?;
     let whole = match &d {
         Draw::Fixed(v) => v.fract() == 0.0,
@@ -146,9 +154,12 @@ pub fn parse(params: &mut Params<'_>, ctx: &PlanContext<'_>) -> Result<Box<dyn S
     };
     let mut config = StftConfig::default();
     let scale = f64::from(ctx.rate) / 16_000.0;
-    config.window_len = (params.number("window", (400.0 * scale).round())?) as usize;
-    config.hop = (params.number("hop", (160.0 * scale).round())?) as usize;
-    config.fft_len = (params.number("fft", config.window_len.next_power_of_two() as f64)?) as usize;
+    let default_window = (400.0 * scale).round() as usize;
+    config.window_len = params.whole("window", default_window, FRAME_LIMITS, "samples")?;
+    let default_hop = (160.0 * scale).round() as usize;
+    config.hop = params.whole("hop", default_hop, (1, FRAME_LIMITS.1), "samples")?;
+    let default_fft = config.window_len.next_power_of_two();
+    config.fft_len = params.whole("fft", default_fft, FRAME_LIMITS, "samples")?;
     if config.hop > config.window_len {
         return Err(params.error(
             "hop",
@@ -212,13 +223,12 @@ pub fn parse(params: &mut Params<'_>, ctx: &PlanContext<'_>) -> Result<Box<dyn S
         ));
     }
     let time_count = count_draw(params, "time_masks", p_time_count)?;
-    let time_width_s = params.draw(
+    let time_width_s = params.draw_within(
         "time_width_s",
         Some(Draw::Fixed(p_time_width.unwrap_or(0.0))),
+        (0.0, 60.0),
+        "s",
     )?;
-    if time_width_s.bounds().0 < 0.0 {
-        return Err(params.error("time_width_s", "a width cannot be negative"));
-    }
     let time_cap = params.number("time_cap", p_cap)?;
     if !(0.0..=1.0).contains(&time_cap) {
         return Err(params.error(

@@ -177,29 +177,149 @@ fn first_non_finite(audio: &Audio) -> Option<usize> {
 /// Reads a step's keys from its `[[step]]` table.
 pub type ParseFn = fn(&mut Params<'_>, &PlanContext<'_>) -> Result<Box<dyn Step>, RecipeError>;
 
-/// Every step a recipe can name, with its parser.
-pub const REGISTRY: &[(&str, ParseFn)] = &[
-    ("speed", speed::parse),
-    ("resample", resample::parse),
-    ("gain", gain::parse),
-    ("noise", noise::parse),
-    ("room", room::parse),
-    ("mask", mask::parse),
-    ("warp", warp::parse),
-    ("stretch", stretch::parse),
-    ("pitch", pitch::parse),
-    ("level", level::parse),
-    ("channel", channel::parse),
+/// One kind of step a recipe can name: its name, what it does, the keys its table may hold
+/// (besides `do` and `chance`), and its parser. The `steps` command, the docs test and the
+/// unknown-key messages all read this one table.
+#[derive(Debug, Clone, Copy)]
+pub struct StepKind {
+    /// The value of `do`.
+    pub name: &'static str,
+    /// One line on what the step does.
+    pub summary: &'static str,
+    /// Every key the parser reads, in the order the docs list them.
+    pub keys: &'static [&'static str],
+    /// Reads the step's table.
+    pub parse: ParseFn,
+}
+
+/// Every step a recipe can name.
+pub const REGISTRY: &[StepKind] = &[
+    StepKind {
+        name: "speed",
+        summary: "speed perturbation: tempo and pitch together, timings scaled",
+        keys: &["factor"],
+        parse: speed::parse,
+    },
+    StepKind {
+        name: "resample",
+        summary: "pass through another sample rate and back (band limit)",
+        keys: &["via_rate"],
+        parse: resample::parse,
+    },
+    StepKind {
+        name: "gain",
+        summary: "level change in dB with a peak ceiling",
+        keys: &["db", "ceiling_db"],
+        parse: gain::parse,
+    },
+    StepKind {
+        name: "noise",
+        summary: "site noise from a bank mixed at a drawn SNR",
+        keys: &[
+            "bank",
+            "snr_db",
+            "snr_over",
+            "weights",
+            "held_out",
+            "part",
+            "crossfade_ms",
+            "silent_speech",
+            "stems",
+        ],
+        parse: noise::parse,
+    },
+    StepKind {
+        name: "room",
+        summary: "reverberation from a simulated room or measured responses",
+        keys: &[
+            "irs",
+            "width_m",
+            "length_m",
+            "height_m",
+            "absorption",
+            "rt60_s",
+            "rt60_formula",
+            "wall_gap_m",
+            "normalise",
+            "align",
+            "tail",
+            "drr_db",
+            "max_ir_s",
+        ],
+        parse: room::parse,
+    },
+    StepKind {
+        name: "mask",
+        summary: "frequency and time masks (SpecAugment on the waveform), `obscured` per word",
+        keys: &[
+            "preset",
+            "window",
+            "hop",
+            "fft",
+            "freq_masks",
+            "freq_width_hz",
+            "freq_width_mel",
+            "mel_scale",
+            "time_masks",
+            "time_width_s",
+            "time_cap",
+            "fill",
+            "ramp_ms",
+            "max_obscured",
+            "only_gaps",
+        ],
+        parse: mask::parse,
+    },
+    StepKind {
+        name: "warp",
+        summary: "time warp around an anchor, timings exact",
+        keys: &["anchor", "shift_s", "max_shift_s", "preset"],
+        parse: warp::parse,
+    },
+    StepKind {
+        name: "stretch",
+        summary: "tempo change without pitch change (WSOLA)",
+        keys: &["factor"],
+        parse: stretch::parse,
+    },
+    StepKind {
+        name: "pitch",
+        summary: "pitch shift in semitones, timings kept",
+        keys: &["semitones"],
+        parse: pitch::parse,
+    },
+    StepKind {
+        name: "level",
+        summary: "loudness (BS.1770) or peak normalisation",
+        keys: &["lufs", "peak_dbfs", "ceiling_db"],
+        parse: level::parse,
+    },
+    StepKind {
+        name: "channel",
+        summary: "microphone and link: band, tilt, G.711, clipping, bit depth",
+        keys: &[
+            "band",
+            "band_hz",
+            "order",
+            "tilt_db_per_octave",
+            "tilt_pivot_hz",
+            "codec",
+            "clip",
+            "clip_dbfs",
+            "bits",
+        ],
+        parse: channel::parse,
+    },
 ];
 
-/// The parser for a step name.
-pub fn parser(name: &str) -> Option<ParseFn> {
-    REGISTRY.iter().find(|(n, _)| *n == name).map(|(_, p)| *p)
+/// The registry row for a step name.
+pub fn kind(name: &str) -> Option<&'static StepKind> {
+    REGISTRY.iter().find(|k| k.name == name)
 }
 
 /// All step names, in registry order.
 pub fn names() -> Vec<&'static str> {
-    REGISTRY.iter().map(|(n, _)| *n).collect()
+    REGISTRY.iter().map(|k| k.name).collect()
 }
 
 #[cfg(test)]
