@@ -439,10 +439,8 @@ impl<'a> Params<'a> {
             if name != "do" && name != "chance" && !self.taken.contains(name) {
                 let mut known: Vec<&str> = self.keys.to_vec();
                 known.extend(["do", "chance"]);
-                let hint = known
-                    .iter()
-                    .filter(|k| !self.taken.contains(**k) && close(name, k))
-                    .min_by_key(|k| strsim::levenshtein(name, k))
+                let unwritten = known.iter().copied().filter(|k| !self.taken.contains(*k));
+                let hint = nearest(name, unwritten)
                     .map(|k| format!("; did you mean `{k}`?"))
                     .unwrap_or_default();
                 return Err(self.ctx.err(
@@ -477,6 +475,14 @@ fn syntax_message(message: &str, at: Option<&str>) -> String {
 fn close(given: &str, known: &str) -> bool {
     let d = strsim::levenshtein(given, known);
     d <= 2 && 3 * d < given.len().max(known.len())
+}
+
+/// The candidate closest to a misspelt `given`, if any is [`close`] enough to suggest.
+fn nearest<'k>(given: &str, candidates: impl IntoIterator<Item = &'k str>) -> Option<&'k str> {
+    candidates
+        .into_iter()
+        .filter(|k| close(given, k))
+        .min_by_key(|k| strsim::levenshtein(given, k))
 }
 
 fn number(v: &DeValue<'_>) -> Result<f64, String> {
@@ -699,10 +705,7 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
                 ));
             };
             let Some(kind_row) = steps::kind(name) else {
-                let hint = steps::names()
-                    .into_iter()
-                    .filter(|n| close(name, n))
-                    .min_by_key(|n| strsim::levenshtein(name, n))
+                let hint = nearest(name, steps::names())
                     .map(|n| format!("; did you mean `{n}`?"))
                     .unwrap_or_default();
                 return Err(ctx.err(
