@@ -42,5 +42,6 @@ pub mod run;
 pub mod seed;
 pub mod slice;
 pub mod steps;
+pub mod take;
 pub mod timemap;
 pub mod transcript;

@@ -14,21 +14,15 @@ use std::time::Instant;
 use rayon::prelude::*;
 use serde::Serialize;
 
-use crate::audio::{self, Audio, SampleFormat};
-use crate::dsp::resample::resample;
+use crate::audio::{self, SampleFormat};
 use crate::files::{self, WriteError, file_stem, write_wav_atomically};
 use crate::outdir::earlier::JOURNAL_NAME;
 use crate::outdir::{
     Earlier, FolderLock, LOCK_NAME, LockError, Overwrite, Targets, refuse_overwrite,
 };
 use crate::recipe::Plan;
-use crate::seed::{TakeRng, step_seed, take_seed};
-use crate::steps::{TakeContext, run_step};
-use crate::timemap::TimeMap;
-use crate::transcript::{
-    self, Clip, Entry, Manifest, Origin, Problem, StepRecord, mark_obscured, read_manifest,
-    remap_lines, validate, write_manifest,
-};
+use crate::take::{at_plan_rate, make_take};
+use crate::transcript::{Clip, Entry, Manifest, Problem, read_manifest, validate, write_manifest};
 use serde_json::Value;
 
 /// Name of the output manifest inside the output folder.
@@ -527,21 +521,14 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
     }
     let seconds_in = source.duration();
     let source_rate = source.rate;
-    let base = if source.rate == plan.rate {
-        source
-    } else {
-        Audio {
-            rate: plan.rate,
-            samples: resample(&source.samples, source.rate, plan.rate),
-        }
-    };
+    let base = at_plan_rate(source, plan);
 
     let mut written: Vec<PathBuf> = Vec::new();
     let mut takes = Vec::with_capacity(plan.takes as usize);
     let outcome = (0..plan.takes).try_for_each(|k| {
         let rel = format!("{TAKES_DIR}/{stem}.t{k}.wav");
         let take = make_take(plan, clip, &base, k, source_rate, &stem)
-            .map_err(|(field, reason)| reject(&field, reason))?;
+            .map_err(|e| reject(&e.field, e.reason))?;
         // Stems are float so that levels recomputed from them match what was measured.
         let files = std::iter::once((&rel, &take.audio, plan.format)).chain(
             take.stems
@@ -590,138 +577,6 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
         return Err(r);
     }
     Ok(done)
-}
-
-struct Take {
-    audio: Audio,
-    clip: Clip,
-    /// Extra signals a step asked to write: (path relative to the output folder, audio).
-    stems: Vec<(String, Audio)>,
-}
-
-/// One take: run the steps with their own streams, compose the maps, rewrite the labels.
-fn make_take(
-    plan: &Plan,
-    clip: &Clip,
-    base: &Audio,
-    k: u32,
-    source_rate: u32,
-    stem: &str,
-) -> Result<Take, (String, String)> {
-    let seed = take_seed(plan.seed, &clip.id, k);
-    let mut audio = base.clone();
-    let mut map = TimeMap::identity(base.duration());
-    let mut records = Vec::with_capacity(plan.steps.len());
-    let untouched = plan.keep_source && k == 0;
-    let source_lines: Vec<(f64, f64)> = clip
-        .lines
-        .iter()
-        .flatten()
-        .map(|l| (l.start, l.end))
-        .collect();
-    let source_words: Vec<(f64, f64)> = clip
-        .lines
-        .iter()
-        .flatten()
-        .flat_map(|l| l.words.iter().map(|w| (w.start, w.end)))
-        .collect();
-    let (mut lines_now, mut words_now) = (source_lines.clone(), source_words.clone());
-    // Stretches hidden by masking steps, in the take's current timeline.
-    let mut hidden: Vec<(f64, f64)> = Vec::new();
-    let mut stems = Vec::new();
-    for (i, planned) in plan.steps.iter().enumerate() {
-        let mut rng = TakeRng::new(step_seed(seed, i));
-        let mut record = StepRecord {
-            step: planned.step.name().to_string(),
-            ran: false,
-            drawn: Default::default(),
-            measured: Default::default(),
-            note: None,
-            stems: Default::default(),
-        };
-        if !untouched && rng.chance(planned.chance) {
-            let take = TakeContext {
-                lines: &lines_now,
-                words: &words_now,
-            };
-            let done = run_step(planned.step.as_ref(), audio, &take, &mut rng)
-                .map_err(|e| (format!("step {} ({})", i + 1, e.step), e.reason))?;
-            audio = done.audio;
-            map = map.then(&done.map);
-            let end = audio.duration();
-            let now = |spans: &[(f64, f64)]| -> Vec<(f64, f64)> {
-                spans
-                    .iter()
-                    .map(|&(a, b)| {
-                        let (a, b) = map.apply_span(a, b);
-                        (a.min(end), b.min(end))
-                    })
-                    .collect()
-            };
-            lines_now = now(&source_lines);
-            words_now = now(&source_words);
-            hidden = hidden
-                .iter()
-                .map(|&(a, b)| done.map.apply_span(a, b))
-                .chain(done.hidden.iter().copied())
-                .collect();
-            record.ran = done.skipped.is_none();
-            record.note = done.skipped;
-            record.drawn = done.drawn;
-            record.measured = done.measured;
-            for (name, signal) in done.stems {
-                let rel = format!("{TAKES_DIR}/{stem}.t{k}.s{}-{name}.wav", i + 1);
-                record
-                    .stems
-                    .insert(name.to_string(), Value::from(rel.clone()));
-                stems.push((rel, signal));
-            }
-        }
-        records.push(record);
-    }
-    if let Some(i) = audio.samples.iter().position(|s| !s.is_finite()) {
-        return Err((
-            String::new(),
-            format!("take {k}: sample {i} is not finite after the steps"),
-        ));
-    }
-    let duration = audio.duration();
-    let masks = plan.steps.iter().any(|p| p.step.hides_time());
-    let lines = clip.lines.as_ref().map(|lines| {
-        let mut lines = remap_lines(lines, &map, duration);
-        if masks {
-            mark_obscured(&mut lines, &hidden);
-        }
-        lines
-    });
-    let mut out = Clip {
-        lines,
-        origin: Some(Origin {
-            source: clip.id.clone(),
-            take: k,
-            seed,
-            source_rate,
-            steps: records,
-            time_map: map,
-        }),
-        ..clip.clone()
-    };
-    out.duration = Some(duration);
-    out.derive_text();
-    if let Some((field, reason)) = transcript::validate(&out, Some(duration))
-        .into_iter()
-        .next()
-    {
-        return Err((
-            field,
-            format!("take {k}: rewritten label is invalid: {reason}"),
-        ));
-    }
-    Ok(Take {
-        audio,
-        clip: out,
-        stems,
-    })
 }
 
 /// [`files::write_atomically`] with the output error of a run.
