@@ -69,7 +69,7 @@ impl Annotation {
     /// Every time through `map`, held inside `[0, duration]`. Returns how many spans were
     /// squeezed to zero length (WebVTT cues among them are removed).
     pub fn through(&mut self, map: &TimeMap, duration: f64) -> usize {
-        let put = |t: f64| map.apply(t).clamp(0.0, duration);
+        let put = |t: f64| map.apply_within(t, duration);
         match self {
             Self::Tsv(table) => {
                 let before: Vec<bool> = table.rows().map(|r| r.end > r.start).collect();

@@ -115,10 +115,7 @@ pub fn make_take(
             let now = |spans: &[(f64, f64)]| -> Vec<(f64, f64)> {
                 spans
                     .iter()
-                    .map(|&(a, b)| {
-                        let (a, b) = map.apply_span(a, b);
-                        (a.min(end), b.min(end))
-                    })
+                    .map(|&(a, b)| (map.apply_within(a, end), map.apply_within(b, end)))
                     .collect()
             };
             lines_now = now(&source_lines);

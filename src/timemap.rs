@@ -127,6 +127,13 @@ impl TimeMap {
         y.clamp(y0, y1)
     }
 
+    /// Take time of source time `t`, kept inside a take of `duration` seconds: the one
+    /// clamping rule every label rewrite uses (take, remap, slice), so a timing can never
+    /// land outside the audio it labels.
+    pub fn apply_within(&self, t: f64, duration: f64) -> f64 {
+        self.apply(t).clamp(0.0, duration)
+    }
+
     /// A source span `[start, end]` in take time. Order is kept: `start <= end` in, so out.
     pub fn apply_span(&self, start: f64, end: f64) -> (f64, f64) {
         (self.apply(start), self.apply(end))

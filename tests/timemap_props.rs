@@ -116,4 +116,23 @@ proptest! {
         short[key].as_array_mut().unwrap().pop();
         prop_assert!(serde_json::from_value::<TimeMap>(short).is_err());
     }
+
+    /// The one clamping rule: any source time, inside or far outside the domain, lands in
+    /// [0, duration], and order is kept (a span stays a span). A take shorter than the map's
+    /// range (a cut tail) clamps at its end.
+    #[test]
+    fn apply_within_stays_in_the_take_and_keeps_order(
+        map in (0.5f64..10.0).prop_flat_map(arb_map),
+        cut in 0.1f64..1.0,
+        ts in prop::collection::vec(-5.0f64..20.0, 2..20),
+    ) {
+        let duration = map.range().1 * cut;
+        let mut ts = ts;
+        ts.sort_by(f64::total_cmp);
+        let out: Vec<f64> = ts.iter().map(|&t| map.apply_within(t, duration)).collect();
+        for (t, y) in ts.iter().zip(&out) {
+            prop_assert!((0.0..=duration).contains(y), "t={t} -> {y} outside [0, {duration}]");
+        }
+        prop_assert!(out.windows(2).all(|w| w[0] <= w[1]), "{out:?}");
+    }
 }

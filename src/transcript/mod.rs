@@ -483,7 +483,7 @@ fn check_span(
 /// Every line and word through `map`, held inside `[0, duration]`. Order and nesting are
 /// kept because the map is monotone; nothing else about the labels changes.
 pub fn remap_lines(lines: &[Line], map: &TimeMap, duration: f64) -> Vec<Line> {
-    let put = |t: f64| map.apply(t).clamp(0.0, duration);
+    let put = |t: f64| map.apply_within(t, duration);
     lines
         .iter()
         .map(|line| Line {
