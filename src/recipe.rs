@@ -280,17 +280,18 @@ impl<'a> Params<'a> {
     /// The error for a required `key` that is absent: when the table holds an unknown key
     /// close to it (`factr` for `factor`), the error is about that key, on its line.
     fn missing(&self, key: &'static str) -> RecipeError {
-        let near = self.table.iter().find(|(k, _)| {
-            let name: &str = k.get_ref().as_ref();
-            !self.keys.contains(&name) && name != "do" && name != "chance" && close(name, key)
-        });
-        match near {
-            Some((k, _)) => self.ctx.err(
-                Some(self.ctx.line_of(k.span().start)),
+        let unknown = self
+            .table
+            .iter()
+            .map(|(k, _)| k.get_ref().as_ref())
+            .filter(|name: &&str| !self.keys.contains(name) && *name != "do" && *name != "chance");
+        match nearest(key, unknown) {
+            Some(name) => self.ctx.err(
+                self.find(name)
+                    .map(|(k, _)| self.ctx.line_of(k.span().start)),
                 format!(
-                    "{}: unknown key `{}`; did you mean `{key}`? (this step needs `{key}`)",
-                    self.label,
-                    k.get_ref().as_ref() as &str
+                    "{}: unknown key `{name}`; did you mean `{key}`? (this step needs `{key}`)",
+                    self.label
                 ),
             ),
             None => self.error(key, "missing; this step needs it"),
