@@ -5,6 +5,10 @@
 //! name and renamed; a clip that fails has its finished takes removed and goes to
 //! `rejects.jsonl` with the reason, and the run goes on. The manifest and rejects are
 //! written in input order at the end, also by rename.
+//!
+//! A shard run ([`RunSpec::shard`]) makes only its share of the clips ([`crate::shard`]) and
+//! writes its manifest and rejects as parts under `parts/` ([`crate::parts`]), beside the
+//! other shards in the same folder; [`crate::join`] puts the parts together.
 
 use std::collections::HashSet;
 use std::io::Write;
@@ -16,11 +20,14 @@ use serde::Serialize;
 
 use crate::audio::{self, SampleFormat};
 use crate::files::{self, WriteError, file_stem, write_wav_atomically};
+use crate::outdir::SharedFolderLock;
 use crate::outdir::earlier::JOURNAL_NAME;
 use crate::outdir::{
     Earlier, FolderLock, LOCK_NAME, LockError, Overwrite, Targets, refuse_overwrite,
 };
+use crate::parts::{PARTS_DIR, PartNames, PartRecord, earlier_manifest_name};
 use crate::recipe::Plan;
+use crate::shard::Shard;
 use crate::take::{at_plan_rate, make_take};
 use crate::transcript::{Clip, Entry, Manifest, Problem, read_manifest, validate, write_manifest};
 use serde_json::Value;
@@ -157,6 +164,9 @@ pub struct RunSpec<'a> {
     pub out: &'a Path,
     /// Worker threads; `None` for one per core.
     pub threads: Option<usize>,
+    /// Make only this shard of the clips, into parts (`None`: all of them, into
+    /// `manifest.jsonl` and `rejects.jsonl`).
+    pub shard: Option<Shard>,
 }
 
 /// One line of `rejects.jsonl`.
@@ -200,15 +210,22 @@ impl From<Problem> for Reject {
 /// far are kept for the next run of the same command.
 pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summary, RunError> {
     let started = Instant::now();
-    let manifest = read_manifest(spec.input).map_err(|source| RunError::Manifest {
+    let mut manifest = read_manifest(spec.input).map_err(|source| RunError::Manifest {
         path: spec.input.to_path_buf(),
         source,
     })?;
+    let input_key = input_key(spec.input).map_err(|source| RunError::Manifest {
+        path: spec.input.to_path_buf(),
+        source,
+    })?;
+    if let Some(shard) = spec.shard {
+        crate::shard::keep(&mut manifest, shard);
+    }
     let plan_inputs = spec.plan.inputs();
     let targets = Targets::new(
         spec.out,
         &[MANIFEST_NAME, REJECTS_NAME, LOCK_NAME, JOURNAL_NAME],
-        &[TAKES_DIR, DONE_DIR],
+        &[TAKES_DIR, DONE_DIR, PARTS_DIR],
     );
     let audio: Vec<(String, PathBuf)> = manifest
         .entries
@@ -228,27 +245,49 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
         )
         .chain(audio.iter().map(|(w, p)| (w.clone(), p.as_path())));
     refuse_overwrite(&targets, named)?;
-    let _lock = FolderLock::acquire(spec.out)?;
+    let part = spec.shard.map(PartNames::of);
+    let _lock = match &part {
+        None => (Some(FolderLock::acquire(spec.out)?), None, None),
+        Some(names) => {
+            let shared = SharedFolderLock::acquire(spec.out)?;
+            let own = FolderLock::acquire_file(&spec.out.join(PARTS_DIR), &lock_name(names))?;
+            (None, Some(shared), Some(own))
+        }
+    };
 
     let takes_dir = spec.out.join(TAKES_DIR);
     let done_dir = spec.out.join(DONE_DIR);
     for dir in [&takes_dir, &done_dir] {
         std::fs::create_dir_all(dir).map_err(RunError::output(dir))?;
     }
-    for dir in [spec.out, &takes_dir, &done_dir] {
-        files::remove_stale_temp_files(dir).map_err(RunError::output(dir))?;
+    // Other shards may be writing into takes/ and .done/ now: their temporary files are
+    // left for the join, which holds the folder alone.
+    if part.is_none() {
+        for dir in [spec.out, &takes_dir, &done_dir] {
+            files::remove_stale_temp_files(dir).map_err(RunError::output(dir))?;
+        }
     }
-    let mut earlier = Earlier::begin(
-        spec.out,
-        &[TAKES_DIR, DONE_DIR],
-        MANIFEST_NAME,
-        &[REJECTS_NAME],
-        // Only take records (with an `origin`) name files a run wrote.
-        |c| match c.origin {
-            Some(_) => take_files(c).map(str::to_string).collect(),
-            None => Vec::new(),
-        },
-    )
+    let mut earlier = match &part {
+        None => Earlier::begin(
+            spec.out,
+            &[TAKES_DIR, DONE_DIR],
+            MANIFEST_NAME,
+            &[REJECTS_NAME],
+            earlier_files,
+        ),
+        Some(names) => set_joined_aside(spec.out)
+            .and_then(|()| remove_if_there(&spec.out.join(names.record())))
+            .and_then(|()| {
+                Earlier::begin_journal(
+                    spec.out,
+                    &names.journal(),
+                    &[TAKES_DIR, DONE_DIR],
+                    &names.manifest(),
+                    &[&names.rejects()],
+                    earlier_files,
+                )
+            }),
+    }
     .map_err(RunError::output(spec.out))?;
     let threads = spec.threads.unwrap_or(0);
     let pool = rayon::ThreadPoolBuilder::new()
@@ -291,6 +330,7 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
     };
     let mut takes = Vec::new();
     let mut records = Vec::new();
+    let mut order = Vec::new();
     let mut rejects: Vec<Reject> = manifest
         .problems
         .iter()
@@ -311,6 +351,7 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
                     summary.seconds_in_kept += done.seconds_in;
                     summary.seconds_out_kept += seconds;
                 }
+                order.push((done.line, done.takes.len(), done.record.clone()));
                 records.push(done.record);
                 takes.extend(done.takes);
             }
@@ -320,21 +361,37 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
     rejects.sort_by_key(|r| r.line);
     summary.rejected = rejects.len();
     files::sync_dir(&done_dir).map_err(RunError::output(&done_dir))?;
-    write_atomically(&spec.out.join(MANIFEST_NAME), |w| write_manifest(w, &takes))?;
-    write_atomically(&spec.out.join(REJECTS_NAME), |w| {
+    let (manifest_name, rejects_name) = match &part {
+        None => (MANIFEST_NAME.to_string(), REJECTS_NAME.to_string()),
+        Some(names) => (names.manifest(), names.rejects()),
+    };
+    write_atomically(&spec.out.join(manifest_name), |w| write_manifest(w, &takes))?;
+    write_atomically(&spec.out.join(rejects_name), |w| {
         for r in &rejects {
             serde_json::to_writer(&mut *w, r)?;
             w.write_all(b"\n")?;
         }
         Ok(())
     })?;
-    // Records of clips not done now (dropped from the input, rejected, made by another
-    // plan) and the takes they list are earlier files too.
-    for (rel, record) in earlier_records(&done_dir) {
-        earlier.add(rel);
-        for f in record.takes.iter().flat_map(take_files) {
-            earlier.add(f.to_string());
-        }
+    if let (Some(names), Some(shard)) = (&part, spec.shard) {
+        // Written last: its presence says the shard finished.
+        let record = PartRecord {
+            shard: shard.index,
+            shards: shard.count,
+            recipe: format!("{:016x}", ctx.plan_key),
+            input: format!("{input_key:016x}"),
+            clips: order,
+            rejects: rejects.iter().map(|r| r.line).collect(),
+        };
+        write_atomically(&spec.out.join(names.record()), |w| {
+            serde_json::to_writer(&mut *w, &record)?;
+            w.write_all(b"\n")
+        })?;
+    } else {
+        // Records of clips not done now (dropped from the input, rejected, made by another
+        // plan) and the takes they list are earlier files too. A shard leaves them to the
+        // join: they may be another shard's.
+        add_unlisted_records(&mut earlier, &done_dir);
     }
     let keep: HashSet<&str> = takes
         .iter()
@@ -371,6 +428,68 @@ pub(crate) fn write_failure<R>(
     }
 }
 
+/// The fingerprint of the input manifest's bytes, which every shard of one run shares.
+pub(crate) fn input_key(input: &Path) -> std::io::Result<u64> {
+    Ok(crate::seed::stable_hash(&[&crate::input_file::read(
+        input,
+    )?]))
+}
+
+/// The lock file's name inside `parts/`.
+fn lock_name(names: &PartNames) -> String {
+    names
+        .lock()
+        .trim_start_matches(&format!("{PARTS_DIR}/"))
+        .to_string()
+}
+
+/// The files a manifest record names that a run wrote: only take records (with an
+/// `origin`) name any.
+pub(crate) fn earlier_files(c: &Clip) -> Vec<String> {
+    match c.origin {
+        Some(_) => take_files(c).map(str::to_string).collect(),
+        None => Vec::new(),
+    }
+}
+
+/// Completion records in `.done/` and the takes they list, as earlier files: those not made
+/// again are removed at the end.
+pub(crate) fn add_unlisted_records(earlier: &mut Earlier, done_dir: &Path) {
+    for (rel, record) in earlier_records(done_dir) {
+        earlier.add(rel);
+        for f in record.takes.iter().flat_map(take_files) {
+            earlier.add(f.to_string());
+        }
+    }
+}
+
+/// A shard starting in a folder with a joined manifest: move it to `parts/` under a name
+/// from its content ([`earlier_manifest_name`]) and remove the joined rejects, so no
+/// manifest lists audio being remade. Shards starting together all write the same file.
+fn set_joined_aside(out: &Path) -> std::io::Result<()> {
+    let joined = out.join(MANIFEST_NAME);
+    match std::fs::read(&joined) {
+        Ok(content) => {
+            let aside = out.join(earlier_manifest_name(&content));
+            std::fs::create_dir_all(out.join(PARTS_DIR))?;
+            files::write_atomically(&aside, |w| w.write_all(&content))?;
+            remove_if_there(&joined)?;
+        }
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => {}
+        Err(e) => return Err(e),
+    }
+    remove_if_there(&out.join(REJECTS_NAME))?;
+    files::sync_dir(out)
+}
+
+/// Remove a file; one already gone is fine.
+pub(crate) fn remove_if_there(path: &Path) -> std::io::Result<()> {
+    match std::fs::remove_file(path) {
+        Err(e) if e.kind() != std::io::ErrorKind::NotFound => Err(e),
+        _ => Ok(()),
+    }
+}
+
 /// What every clip of a run shares.
 struct ClipContext<'a> {
     plan: &'a Plan,
@@ -381,7 +500,7 @@ struct ClipContext<'a> {
 }
 
 /// The files of a take record, relative to the output folder: its audio and its stems.
-fn take_files(take: &Clip) -> impl Iterator<Item = &str> {
+pub(crate) fn take_files(take: &Clip) -> impl Iterator<Item = &str> {
     let stems = take
         .origin
         .iter()
@@ -393,7 +512,7 @@ fn take_files(take: &Clip) -> impl Iterator<Item = &str> {
 
 /// Completion records in `.done/` (relative path, content); files there that do not read
 /// as one are not ours and are left alone.
-fn earlier_records(done_dir: &Path) -> Vec<(String, ClipResult)> {
+pub(crate) fn earlier_records(done_dir: &Path) -> Vec<(String, ClipResult)> {
     let Ok(entries) = std::fs::read_dir(done_dir) else {
         return Vec::new();
     };
@@ -413,7 +532,7 @@ fn earlier_records(done_dir: &Path) -> Vec<(String, ClipResult)> {
 
 /// The plan's fingerprint with the size and modification time of every file its steps
 /// read: a noise file or response changed, added or removed makes every record stale.
-fn plan_key(plan: &Plan, inputs: &[PathBuf]) -> u64 {
+pub(crate) fn plan_key(plan: &Plan, inputs: &[PathBuf]) -> u64 {
     let stamps: Vec<String> = inputs
         .iter()
         .map(|p| format!("{}|{}", p.display(), file_stamp(p)))
@@ -441,16 +560,19 @@ fn file_stamp(path: &Path) -> String {
 /// A finished clip: its takes as manifest records. Also the content of its completion
 /// record in [`DONE_DIR`].
 #[derive(Debug, Serialize, serde::Deserialize)]
-struct ClipResult {
+pub(crate) struct ClipResult {
     /// [`clip_fingerprint`] of the work this result is for.
     fingerprint: String,
     seconds_in: f64,
-    takes: Vec<Clip>,
+    pub(crate) takes: Vec<Clip>,
     #[serde(skip)]
     resumed: bool,
     /// The record's path relative to the output folder.
     #[serde(skip)]
     record: String,
+    /// The clip's line in the input manifest.
+    #[serde(skip)]
+    line: usize,
 }
 
 /// What decides a clip's takes: the plan and the files it reads ([`plan_key`]), the clip's
@@ -511,6 +633,7 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
     let fingerprint = clip_fingerprint(ctx.plan_key, clip, &path);
     if let Some(mut done) = finished_earlier(&record, &fingerprint, out, plan.rate) {
         done.record = record_rel;
+        done.line = entry.line;
         return Ok(done);
     }
     let source = audio::decode(&path, plan.channels)
@@ -554,6 +677,7 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
         takes,
         resumed: false,
         record: record_rel,
+        line: entry.line,
     };
     // The takes' names are flushed before the record that counts on them.
     let takes_dir = out.join(TAKES_DIR);

@@ -33,6 +33,7 @@ fn run_speed(factor: f64, out: &Path) -> Vec<Clip> {
         input: &manifest,
         out,
         threads: None,
+        shard: None,
     };
     let summary = run::run(&spec, &|_| {}).expect("run");
     assert_eq!(summary.rejected, 0, "demo clips must all be accepted");

@@ -5,6 +5,7 @@ mod check;
 mod demo;
 mod export;
 mod import;
+mod join;
 mod plan;
 mod remap;
 mod run;
@@ -16,6 +17,7 @@ use std::process::ExitCode;
 use clap::{CommandFactory, Parser, Subcommand};
 use retake::audio::ChannelPolicy;
 use retake::export::Format;
+use retake::shard::ShardArg;
 
 /// How a command ended; the one place an ending becomes an exit status (the table in the
 /// README's "Exit status" section).
@@ -117,6 +119,26 @@ enum Command {
         /// Overrides the recipe's `channels`.
         #[arg(long, value_parser = parse_channels)]
         channels: Option<ChannelPolicy>,
+        /// Make only shard K of N (K from 0) into parts under OUT/parts/, for `retake join`.
+        /// `env` takes K and N from a Slurm job array (SLURM_ARRAY_TASK_ID, _MIN, _MAX or
+        /// _COUNT); `env/N` takes K from a Kubernetes Indexed Job (JOB_COMPLETION_INDEX).
+        #[arg(long, value_name = "K/N|env|env/N", value_parser = parse_shard)]
+        shard: Option<ShardArg>,
+    },
+    /// Join the shards of a sharded run into one manifest.jsonl and rejects.jsonl.
+    ///
+    /// The result is byte for byte what one `retake run` without `--shard` writes. Refused,
+    /// naming them, when a shard is missing, unfinished, or made with another recipe or
+    /// input.
+    Join {
+        /// The recipe the shards ran.
+        recipe: PathBuf,
+        /// The input manifest the shards read.
+        #[arg(long, short)]
+        input: PathBuf,
+        /// The shared output folder.
+        #[arg(long, short)]
+        out: PathBuf,
     },
     /// Check a recipe and print its plan (each step, its values, its chance); writes nothing.
     Plan {
@@ -184,7 +206,9 @@ pub fn main() -> ExitCode {
             out,
             threads,
             channels,
-        } => run::run(&recipe, &input, &out, threads, channels),
+            shard,
+        } => run::run(&recipe, &input, &out, threads, channels, shard),
+        Command::Join { recipe, input, out } => join::join(&recipe, &input, &out),
         Command::Check { manifest } => check::check(&manifest),
         Command::Bank {
             dir,
@@ -232,6 +256,10 @@ fn parse_channels(s: &str) -> Result<ChannelPolicy, String> {
     s.parse::<usize>()
         .map(ChannelPolicy::Pick)
         .map_err(|_| format!("`{s}`: expected `mix` or a channel number counted from 0"))
+}
+
+fn parse_shard(s: &str) -> Result<ShardArg, String> {
+    retake::shard::parse_arg(s).map_err(|e| e.to_string())
 }
 
 fn parse_format(s: &str) -> Result<Format, String> {

@@ -9,6 +9,7 @@ use indicatif::{ProgressBar, ProgressStyle};
 use retake::audio::ChannelPolicy;
 use retake::recipe;
 use retake::run::{self, Event, REJECTS_NAME, RunSpec, Summary};
+use retake::shard::{self, ShardArg};
 
 pub fn run(
     recipe_path: &Path,
@@ -16,7 +17,16 @@ pub fn run(
     out: &Path,
     threads: Option<usize>,
     channels: Option<ChannelPolicy>,
+    shard: Option<ShardArg>,
 ) -> ExitCode {
+    let shard = match shard.map(|a| shard::resolve(a, |k| std::env::var(k).ok())) {
+        None => None,
+        Some(Ok(s)) => Some(s),
+        Some(Err(e)) => {
+            eprintln!("retake: {e}");
+            return Exit::Usage.into();
+        }
+    };
     let mut plan = match recipe::load(recipe_path) {
         Ok(p) => p,
         Err(e) => {
@@ -56,6 +66,7 @@ pub fn run(
         input,
         out,
         threads,
+        shard,
     };
     let result = run::run(&spec, &on_event);
     bar.finish_and_clear();
@@ -70,7 +81,20 @@ pub fn run(
             }
         }
         Ok(summary) => {
-            print_summary(&summary, out);
+            // A shard's manifest and rejects are parts, for `retake join`.
+            let (manifest, rejects) = match shard.map(retake::parts::PartNames::of) {
+                Some(p) => (out.join(p.manifest()), out.join(p.rejects())),
+                None => (out.join(run::MANIFEST_NAME), out.join(REJECTS_NAME)),
+            };
+            print_summary(&summary, &manifest, &rejects);
+            if let Some(s) = shard {
+                println!(
+                    "shard   {s} done; when every shard is: retake join {} -i {} -o {}",
+                    recipe_path.display(),
+                    input.display(),
+                    out.display()
+                );
+            }
             if summary.rejected > 0 {
                 Exit::DoneWithRejects.into()
             } else {
@@ -80,7 +104,7 @@ pub fn run(
     }
 }
 
-fn print_summary(s: &Summary, out: &Path) {
+fn print_summary(s: &Summary, manifest: &Path, rejects: &Path) {
     println!(
         "clips   {} read, {} done, {} rejected",
         s.clips_in, s.clips_done, s.rejected
@@ -117,14 +141,14 @@ fn print_summary(s: &Summary, out: &Path) {
     }
     println!(
         "output  {} ({}, {:.3} h)",
-        out.join(run::MANIFEST_NAME).display(),
+        manifest.display(),
         super::count(s.takes, "take"),
         s.seconds_out / 3600.0
     );
     if s.rejected > 0 {
         println!(
             "rejects {} (one line per clip, with the reason)",
-            out.join(REJECTS_NAME).display()
+            rejects.display()
         );
     }
 }
