@@ -108,11 +108,12 @@ pub fn parse_arg(given: &str) -> Result<ShardArg, ShardError> {
 /// The shard an argument means, reading the engine's variables through `var` (the CLI
 /// passes `std::env::var`; tests pass a table).
 ///
-/// Slurm job array: K = `SLURM_ARRAY_TASK_ID` − `SLURM_ARRAY_TASK_MIN`, N =
+/// Slurm job array, `env`: K = `SLURM_ARRAY_TASK_ID` − `SLURM_ARRAY_TASK_MIN`, N =
 /// `SLURM_ARRAY_TASK_COUNT` (or `MAX` − `MIN` + 1); the array must be a plain range
-/// (`--array=0-(N-1)`, any `%` limit), so the two counts must agree. Kubernetes Indexed Job:
-/// K = `JOB_COMPLETION_INDEX`, N given as `env/N` (the Job's `completions`). A count given
-/// with a Slurm array must equal the array's.
+/// (`--array=0-(N-1)`, any `%` limit), so the two counts must agree. Slurm with `env/N`:
+/// K = `SLURM_ARRAY_TASK_ID` itself, below N, so one task resubmitted alone
+/// (`sbatch --array=2 ...`) is still shard 2. Kubernetes Indexed Job: K =
+/// `JOB_COMPLETION_INDEX`, N given as `env/N` (the Job's `completions`).
 ///
 /// # Errors
 /// [`ShardError::NoEngine`] when neither engine's index is set, [`ShardError::Inconsistent`]
@@ -150,6 +151,17 @@ pub fn resolve(arg: ShardArg, var: impl Fn(&str) -> Option<String>) -> Result<Sh
                 "both SLURM_ARRAY_TASK_ID={id} and JOB_COMPLETION_INDEX={index} are set; \
                  run under one engine, or give the shard as K/N"
             )));
+        }
+        (Some(id), None) if given_count.is_some() => {
+            let count = given_count.unwrap_or(1);
+            if id >= count {
+                return Err(bad(format!(
+                    "SLURM_ARRAY_TASK_ID={id} is not below the {count} shards given (with \
+                     env/N the array index is the shard: submit with --array=0-{})",
+                    count - 1
+                )));
+            }
+            Shard { index: id, count }
         }
         (Some(id), None) => {
             let min = number("SLURM_ARRAY_TASK_MIN")?;
@@ -189,13 +201,6 @@ pub fn resolve(arg: ShardArg, var: impl Fn(&str) -> Option<String>) -> Result<Sh
                 return Err(bad(format!(
                     "SLURM_ARRAY_TASK_ID={id} lies outside the array ({min} to {})",
                     min + count - 1
-                )));
-            }
-            if let Some(n) = given_count
-                && n != count
-            {
-                return Err(bad(format!(
-                    "{n} shards were given but the Slurm array has {count} tasks"
                 )));
             }
             Shard {
@@ -326,9 +331,24 @@ mod tests {
         ]);
         let got = resolve(ShardArg::FromEngine(None), &vars).unwrap();
         assert_eq!(got, Shard { index: 2, count: 4 });
-        assert_eq!(resolve(ShardArg::FromEngine(Some(4)), &vars), Ok(got));
-        let e = resolve(ShardArg::FromEngine(Some(5)), &vars).unwrap_err();
-        assert!(e.to_string().contains("5 shards were given"), "{e}");
+        // With the count given the index is the shard: index 12 of 4 is refused.
+        let e = resolve(ShardArg::FromEngine(Some(4)), &vars).unwrap_err();
+        assert!(e.to_string().contains("not below the 4 shards"), "{e}");
+        // One task of a 4-shard array resubmitted alone (--array=2): still shard 2 of 4.
+        let again = env(&[
+            ("SLURM_ARRAY_TASK_ID", "2"),
+            ("SLURM_ARRAY_TASK_MIN", "2"),
+            ("SLURM_ARRAY_TASK_MAX", "2"),
+            ("SLURM_ARRAY_TASK_COUNT", "1"),
+        ]);
+        assert_eq!(
+            resolve(ShardArg::FromEngine(Some(4)), &again),
+            Ok(Shard { index: 2, count: 4 })
+        );
+        assert_eq!(
+            resolve(ShardArg::FromEngine(None), &again),
+            Ok(Shard { index: 0, count: 1 })
+        );
         // Count only, MAX only: both enough.
         let count_only = env(&[
             ("SLURM_ARRAY_TASK_ID", "0"),

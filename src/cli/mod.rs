@@ -5,6 +5,7 @@ mod check;
 mod demo;
 mod export;
 mod import;
+mod jobs;
 mod join;
 mod plan;
 mod remap;
@@ -140,6 +141,9 @@ enum Command {
         #[arg(long, short)]
         out: PathBuf,
     },
+    /// Write ready job files for a sharded run: a Slurm array with the join after it, or a
+    /// Kubernetes Indexed Job and a join Job; CPU and memory from the memory model.
+    Jobs(jobs::JobsArgs),
     /// Check a recipe and print its plan (each step, its values, its chance); writes nothing.
     Plan {
         /// The recipe (TOML).
@@ -209,6 +213,7 @@ pub fn main() -> ExitCode {
             shard,
         } => run::run(&recipe, &input, &out, threads, channels, shard),
         Command::Join { recipe, input, out } => join::join(&recipe, &input, &out),
+        Command::Jobs(args) => jobs::jobs(args),
         Command::Check { manifest } => check::check(&manifest),
         Command::Bank {
             dir,
