@@ -88,32 +88,33 @@ fn run_tolerating_rejects(command: &str) -> String {
     )
 }
 
+/// `retake <verb> RECIPE --input INPUT --out OUT` and what follows.
+fn command(spec: &JobSpec, verb: &str, more: &[String]) -> Vec<String> {
+    let path = |p: &Path| p.to_string_lossy().into_owned();
+    [path(&spec.retake), verb.into(), path(&spec.recipe)]
+        .into_iter()
+        .chain([
+            "--input".into(),
+            path(&spec.input),
+            "--out".into(),
+            path(&spec.out),
+        ])
+        .chain(more.iter().cloned())
+        .collect()
+}
+
 fn run_command(spec: &JobSpec) -> Vec<String> {
-    vec![
-        spec.retake.to_string_lossy().into_owned(),
-        "run".into(),
-        spec.recipe.to_string_lossy().into_owned(),
-        "--input".into(),
-        spec.input.to_string_lossy().into_owned(),
-        "--out".into(),
-        spec.out.to_string_lossy().into_owned(),
-        "--shard".into(),
-        format!("env/{}", spec.shards),
-        "--threads".into(),
-        spec.threads.to_string(),
-    ]
+    let shard = format!("env/{}", spec.shards);
+    let threads = spec.threads.to_string();
+    command(
+        spec,
+        "run",
+        &["--shard".into(), shard, "--threads".into(), threads],
+    )
 }
 
 fn join_command(spec: &JobSpec) -> Vec<String> {
-    vec![
-        spec.retake.to_string_lossy().into_owned(),
-        "join".into(),
-        spec.recipe.to_string_lossy().into_owned(),
-        "--input".into(),
-        spec.input.to_string_lossy().into_owned(),
-        "--out".into(),
-        spec.out.to_string_lossy().into_owned(),
-    ]
+    command(spec, "join", &[])
 }
 
 fn shell_line(words: &[String]) -> String {

@@ -60,21 +60,6 @@ fn stderr(o: &std::process::Output) -> String {
     String::from_utf8_lossy(&o.stderr).into_owned()
 }
 
-/// Every file of `whole` is in `sharded` with the same bytes, and `sharded` holds nothing
-/// else but its `parts/` folder.
-fn assert_same_output(whole: &Path, sharded: &Path) {
-    let a = files_under(whole);
-    let b: Vec<_> = files_under(sharded)
-        .into_iter()
-        .filter(|(name, _)| !name.starts_with("parts/"))
-        .collect();
-    let names = |v: &[(String, Vec<u8>)]| v.iter().map(|f| f.0.clone()).collect::<Vec<_>>();
-    assert_eq!(names(&a), names(&b));
-    for ((name, x), (_, y)) in a.iter().zip(&b) {
-        assert!(x == y, "{name} differs");
-    }
-}
-
 #[test]
 fn every_split_joins_to_the_one_machine_output() {
     let tmp = tempfile::tempdir().unwrap();
@@ -113,7 +98,7 @@ fn every_split_joins_to_the_one_machine_output() {
         assert_eq!(seen.len(), clips, "N={n}: the shards hold every clip once");
         let o = join(&recipe, &input, &out);
         assert_eq!(o.status.code(), Some(3), "N={n}: {}", stderr(&o));
-        assert_same_output(&whole, &out);
+        common::assert_same_output_but_parts(&whole, &out);
     }
 }
 
@@ -184,7 +169,7 @@ fn the_join_names_missing_unfinished_and_foreign_shards() {
     assert_eq!(o.status.code(), Some(3), "{}", stderr(&o));
     let whole = tmp.path().join("whole");
     run(&recipe, &input, &whole, &[]);
-    assert_same_output(&whole, &out);
+    common::assert_same_output_but_parts(&whole, &out);
 }
 
 #[test]
@@ -207,7 +192,7 @@ fn a_sharded_rerun_removes_what_an_earlier_whole_run_made_and_it_did_not() {
     assert!(String::from_utf8_lossy(&o.stdout).contains("removed 10 files"));
     let whole = tmp.path().join("whole");
     run(&recipe, &input, &whole, &[]);
-    assert_same_output(&whole, &out);
+    common::assert_same_output_but_parts(&whole, &out);
     let left: Vec<String> = files_under(&out.join("parts"))
         .into_iter()
         .map(|f| f.0)

@@ -13,7 +13,7 @@ use std::process::Command;
 use std::sync::{Mutex, OnceLock};
 use std::time::{Duration, Instant};
 
-use common::{demo, files_under, retake};
+use common::{demo, retake};
 use retake::shard::{Shard, keep};
 use retake::transcript::read_manifest;
 
@@ -243,21 +243,11 @@ fn wait_done(job: &str, started: Instant) {
     }
 }
 
-/// Every file of the one-machine run is in `out` with the same bytes, and `out` holds
-/// nothing else but its `parts/` folder.
+/// The sharded output equals the one-machine run: 200 clips x 3 takes, their completion
+/// records, manifest, rejects and lock.
 fn assert_same_as_whole(whole: &Path, out: &Path) {
-    let a = files_under(whole);
-    let b: Vec<_> = files_under(out)
-        .into_iter()
-        .filter(|(n, _)| !n.starts_with("parts/"))
-        .collect();
-    let names = |v: &[(String, Vec<u8>)]| v.iter().map(|f| f.0.clone()).collect::<Vec<_>>();
-    assert_eq!(names(&a), names(&b));
-    // 200 clips x 3 takes, their completion records, manifest, rejects and lock.
-    assert_eq!(a.len(), CLIPS * 3 + CLIPS + 3);
-    for ((name, x), (_, y)) in a.iter().zip(&b) {
-        assert!(x == y, "{name} differs from the one-machine run");
-    }
+    let files = common::assert_same_output_but_parts(whole, out);
+    assert_eq!(files, CLIPS * 3 + CLIPS + 3);
 }
 
 #[test]
