@@ -193,13 +193,13 @@ pub fn is_out_of_space(e: &std::io::Error) -> bool {
     )
 }
 
-/// Write `signal` to `out/rel` under a temporary name, flush it to disk and rename it into
-/// place. The folder is not flushed here: the caller calls [`sync_dir`] once for a batch of
+/// Write `signal` to `out/rel` in `format` (WAV or FLAC, as its row of the output-format
+/// table says) under a temporary name, flush it to disk and rename it into place. The folder is not flushed here: the caller calls [`sync_dir`] once for a batch of
 /// files, before anything that counts on them (a completion record, a manifest) is written.
 ///
 /// # Errors
 /// Encoding, writing, flushing or renaming; the temporary file is removed.
-pub fn write_wav_atomically(
+pub fn write_audio_atomically(
     out: &Path,
     rel: &str,
     signal: &Audio,
@@ -207,7 +207,7 @@ pub fn write_wav_atomically(
 ) -> Result<PathBuf, WriteError> {
     let dest = out.join(rel);
     let tmp = temp_path(&dest);
-    let result = audio::write_wav(&tmp, signal, format)
+    let result = audio::write_audio(&tmp, signal, format)
         .map_err(|e| match e {
             AudioError::Io { source, .. } => source,
             other => std::io::Error::other(other.to_string()),
@@ -224,15 +224,19 @@ pub fn write_wav_atomically(
     Ok(dest)
 }
 
-/// Frames of a WAV file that is whole: its RIFF length matches the file's length, so it was
-/// finished and not cut short since. `None` for a missing, unreadable, unfinished or
-/// truncated file.
-pub fn whole_wav_frames(path: &Path) -> Option<(u32, u64)> {
+/// Rate and frames of an audio file this tool wrote, when it is whole: a WAV whose RIFF
+/// length matches the file's length (so it was finished and not cut short since), or a
+/// FLAC file's STREAMINFO (a FLAC file is written whole, then renamed; its frames are not
+/// checked further). `None` for a missing, unreadable, unfinished or truncated file.
+pub fn whole_audio_frames(path: &Path) -> Option<(u32, u64)> {
     use std::io::Read;
     let mut file = std::fs::File::open(path).ok()?;
     let len = file.metadata().ok()?.len();
     let mut head = [0u8; 8];
     file.read_exact(&mut head).ok()?;
+    if &head[..4] == b"fLaC" {
+        return flac_frames(&head, &mut file);
+    }
     let riff = u32::from_le_bytes([head[4], head[5], head[6], head[7]]);
     if &head[..4] != b"RIFF" || u64::from(riff) + 8 != len {
         return None;
@@ -242,6 +246,22 @@ pub fn whole_wav_frames(path: &Path) -> Option<(u32, u64)> {
     let frames = u64::from(reader.duration());
     let data = frames * u64::from(spec.bits_per_sample / 8) * u64::from(spec.channels);
     (data <= len).then_some((spec.sample_rate, frames))
+}
+
+/// Rate and total samples from a FLAC file's STREAMINFO block (the first metadata block,
+/// 34 bytes: rate in 20 bits, channels and depth, then total samples in 36 bits).
+fn flac_frames(head: &[u8; 8], file: &mut std::fs::File) -> Option<(u32, u64)> {
+    use std::io::Read;
+    // Block header: type 0 (STREAMINFO) in the low 7 bits, length 34.
+    if head[4] & 0x7F != 0 || head[5..8] != [0, 0, 34] {
+        return None;
+    }
+    let mut info = [0u8; 34];
+    file.read_exact(&mut info).ok()?;
+    let packed = u64::from_be_bytes(info[10..18].try_into().ok()?);
+    let rate = (packed >> 44) as u32;
+    let frames = packed & ((1 << 36) - 1);
+    (rate > 0).then_some((rate, frames))
 }
 
 #[cfg(test)]

@@ -18,8 +18,8 @@ use std::time::Instant;
 use rayon::prelude::*;
 use serde::Serialize;
 
-use crate::audio::{self, SampleFormat};
-use crate::files::{self, WriteError, file_stem, write_wav_atomically};
+use crate::audio::{self, STEM_FORMAT};
+use crate::files::{self, WriteError, file_stem, write_audio_atomically};
 use crate::outdir::SharedFolderLock;
 use crate::outdir::earlier::JOURNAL_NAME;
 use crate::outdir::{
@@ -599,11 +599,11 @@ fn finished_earlier(record: &Path, fingerprint: &str, out: &Path, rate: u32) -> 
     }
     for take in &done.takes {
         let frames = (take.duration? * f64::from(rate)).round() as u64;
-        if files::whole_wav_frames(&out.join(&take.audio)) != Some((rate, frames)) {
+        if files::whole_audio_frames(&out.join(&take.audio)) != Some((rate, frames)) {
             return None;
         }
         for stem in take_files(take).skip(1) {
-            if files::whole_wav_frames(&out.join(stem)).is_none_or(|(r, _)| r != rate) {
+            if files::whole_audio_frames(&out.join(stem)).is_none_or(|(r, _)| r != rate) {
                 return None;
             }
         }
@@ -649,17 +649,13 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
     let mut written: Vec<PathBuf> = Vec::new();
     let mut takes = Vec::with_capacity(plan.takes as usize);
     let outcome = (0..plan.takes).try_for_each(|k| {
-        let rel = format!("{TAKES_DIR}/{stem}.t{k}.wav");
+        let rel = format!("{TAKES_DIR}/{stem}.t{k}.{}", plan.format.extension());
         let take = make_take(plan, clip, &base, k, source_rate, &stem)
             .map_err(|e| reject(&e.field, e.reason))?;
-        // Stems are float so that levels recomputed from them match what was measured.
-        let files = std::iter::once((&rel, &take.audio, plan.format)).chain(
-            take.stems
-                .iter()
-                .map(|(r, a)| (r, a, SampleFormat::Float32)),
-        );
+        let files = std::iter::once((&rel, &take.audio, plan.format))
+            .chain(take.stems.iter().map(|(r, a)| (r, a, STEM_FORMAT)));
         for (rel, signal, format) in files {
-            let dest = write_wav_atomically(out, rel, signal, format)
+            let dest = write_audio_atomically(out, rel, signal, format)
                 .map_err(|e| write_failure(e, |m| reject("", m)))?;
             written.push(dest);
         }

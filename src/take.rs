@@ -130,7 +130,8 @@ pub fn make_take(
             record.drawn = done.drawn;
             record.measured = done.measured;
             for (name, signal) in done.stems {
-                let rel = format!("{TAKES_DIR}/{stem}.t{k}.s{}-{name}.wav", i + 1);
+                let ext = crate::audio::STEM_FORMAT.extension();
+                let rel = format!("{TAKES_DIR}/{stem}.t{k}.s{}-{name}.{ext}", i + 1);
                 record
                     .stems
                     .insert(name.to_string(), Value::from(rel.clone()));
