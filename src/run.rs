@@ -167,6 +167,9 @@ pub struct RunSpec<'a> {
     /// Make only this shard of the clips, into parts (`None`: all of them, into
     /// `manifest.jsonl` and `rejects.jsonl`).
     pub shard: Option<Shard>,
+    /// Memory one worker may need for one clip, bytes, as [`crate::memory`] predicts it
+    /// before decoding; a clip over it is a reject pointing at `retake slice`.
+    pub clip_memory_limit: u64,
 }
 
 /// One line of `rejects.jsonl`.
@@ -305,6 +308,7 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
         manifest: &manifest,
         out: spec.out,
         plan_key: plan_key(spec.plan, &plan_inputs),
+        clip_memory_limit: spec.clip_memory_limit,
     };
     let results: Vec<Result<ClipResult, Reject>> = pool.install(|| {
         manifest
@@ -497,6 +501,8 @@ struct ClipContext<'a> {
     out: &'a Path,
     /// [`plan_key`] of the run.
     plan_key: u64,
+    /// [`RunSpec::clip_memory_limit`].
+    clip_memory_limit: u64,
 }
 
 /// The files of a take record, relative to the output folder: its audio and its stems.
@@ -627,6 +633,12 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
         return Err(reject(&field, reason));
     }
     let path = manifest.base().join(&clip.audio);
+    // Before anything is decoded: a clip the memory model says will not fit is a reject.
+    if let Some(why) = crate::memory::clip_seconds(clip.duration, &path)
+        .and_then(|secs| crate::memory::over_limit(plan, secs, ctx.clip_memory_limit))
+    {
+        return Err(reject("audio", why));
+    }
     let stem = file_stem(&clip.id);
     let record_rel = format!("{DONE_DIR}/{stem}.json");
     let record = out.join(&record_rel);
@@ -643,6 +655,10 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
         return Err(reject(&field, reason));
     }
     let seconds_in = source.duration();
+    // A clip whose header did not say its length is measured now, before any step runs.
+    if let Some(why) = crate::memory::over_limit(plan, seconds_in, ctx.clip_memory_limit) {
+        return Err(reject("audio", why));
+    }
     let source_rate = source.rate;
     let base = at_plan_rate(source, plan);
 

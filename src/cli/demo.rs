@@ -56,6 +56,7 @@ pub fn demo(out: &Path, threads: Option<usize>) -> ExitCode {
         threads,
         None,
         None,
+        retake::memory::DEFAULT_LIMIT_BYTES,
     )
 }
 

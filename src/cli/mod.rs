@@ -125,6 +125,11 @@ enum Command {
         /// _COUNT); `env/N` takes K from a Kubernetes Indexed Job (JOB_COMPLETION_INDEX).
         #[arg(long, value_name = "K/N|env|env/N", value_parser = parse_shard)]
         shard: Option<ShardArg>,
+        /// Memory one worker may need for one clip, MiB (memory model, docs/cluster.md); a
+        /// longer clip is a reject pointing at `retake slice`.
+        #[arg(long, value_name = "MIB", default_value_t = retake::memory::DEFAULT_LIMIT_BYTES >> 20,
+              value_parser = clap::value_parser!(u64).range(1..=(1 << 30)))]
+        max_clip_memory: u64,
     },
     /// Join the shards of a sharded run into one manifest.jsonl and rejects.jsonl.
     ///
@@ -211,7 +216,16 @@ pub fn main() -> ExitCode {
             threads,
             channels,
             shard,
-        } => run::run(&recipe, &input, &out, threads, channels, shard),
+            max_clip_memory,
+        } => run::run(
+            &recipe,
+            &input,
+            &out,
+            threads,
+            channels,
+            shard,
+            max_clip_memory << 20,
+        ),
         Command::Join { recipe, input, out } => join::join(&recipe, &input, &out),
         Command::Jobs(args) => jobs::jobs(args),
         Command::Check { manifest } => check::check(&manifest),

@@ -18,6 +18,7 @@ pub fn run(
     threads: Option<usize>,
     channels: Option<ChannelPolicy>,
     shard: Option<ShardArg>,
+    clip_memory_limit: u64,
 ) -> ExitCode {
     let shard = match shard.map(|a| shard::resolve(a, |k| std::env::var(k).ok())) {
         None => None,
@@ -67,6 +68,7 @@ pub fn run(
         out,
         threads,
         shard,
+        clip_memory_limit,
     };
     let result = run::run(&spec, &on_event);
     bar.finish_and_clear();
