@@ -139,9 +139,70 @@ pub fn sync_dir(dir: &Path) -> std::io::Result<()> {
     std::fs::File::open(dir)?.sync_all()
 }
 
+/// A file being written under its temporary name ([`temp_path`]): filled as a stream, then
+/// [`AtomicFile::commit`] flushes it to disk, renames it into place and flushes the folder,
+/// so a crash or power cut leaves either the old file or the whole new one. Dropped without
+/// a commit, it removes its temporary file.
+#[derive(Debug)]
+pub struct AtomicFile {
+    path: PathBuf,
+    tmp: PathBuf,
+    writer: Option<std::io::BufWriter<std::fs::File>>,
+}
+
+impl AtomicFile {
+    /// Start writing `path` (nothing is at `path` until the commit).
+    ///
+    /// # Errors
+    /// Creating the temporary file.
+    pub fn create(path: &Path) -> std::io::Result<Self> {
+        let tmp = temp_path(path);
+        let file = std::fs::File::create(&tmp)?;
+        Ok(AtomicFile {
+            path: path.to_path_buf(),
+            tmp,
+            writer: Some(std::io::BufWriter::new(file)),
+        })
+    }
+
+    /// Where to write.
+    pub fn writer(&mut self) -> &mut std::io::BufWriter<std::fs::File> {
+        self.writer
+            .as_mut()
+            .expect("an AtomicFile has its writer until it is committed")
+    }
+
+    /// Flush to disk, rename into place, flush the folder.
+    ///
+    /// # Errors
+    /// Flushing, syncing or renaming; the temporary file is removed.
+    pub fn commit(mut self) -> std::io::Result<()> {
+        let result = (|| {
+            let mut w = self.writer.take().expect("committed once");
+            w.flush()?;
+            w.get_ref().sync_all()?;
+            drop(w);
+            std::fs::rename(&self.tmp, &self.path)
+        })();
+        if result.is_err() {
+            let _ = std::fs::remove_file(&self.tmp);
+        }
+        result?;
+        sync_dir(self.path.parent().unwrap_or(Path::new(".")))
+    }
+}
+
+impl Drop for AtomicFile {
+    fn drop(&mut self) {
+        if self.writer.take().is_some() {
+            let _ = std::fs::remove_file(&self.tmp);
+        }
+    }
+}
+
 /// Write a file under a temporary name ([`temp_path`]), flush it to disk, rename it into
 /// place and flush the folder, so a crash or power cut leaves either the old file or the
-/// whole new one.
+/// whole new one ([`AtomicFile`] for a file written as a stream).
 ///
 /// # Errors
 /// Creating, filling, flushing or renaming the file; the temporary file is removed.
@@ -149,21 +210,9 @@ pub fn write_atomically(
     path: &Path,
     fill: impl FnOnce(&mut std::io::BufWriter<std::fs::File>) -> std::io::Result<()>,
 ) -> std::io::Result<()> {
-    let tmp = temp_path(path);
-    let result = (|| {
-        let file = std::fs::File::create(&tmp)?;
-        let mut w = std::io::BufWriter::new(file);
-        fill(&mut w)?;
-        w.flush()?;
-        w.get_ref().sync_all()?;
-        drop(w);
-        std::fs::rename(&tmp, path)
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    result?;
-    sync_dir(path.parent().unwrap_or(Path::new(".")))
+    let mut file = AtomicFile::create(path)?;
+    fill(file.writer())?;
+    file.commit()
 }
 
 /// A file that could not be written, with the system's reason when there is one.

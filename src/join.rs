@@ -7,7 +7,7 @@
 //! made from the recipe and input given to the join; otherwise the refusal names each shard
 //! at fault. The join holds the folder's lock alone, so it is refused while any shard runs.
 
-use std::collections::{BTreeMap, BTreeSet, HashSet};
+use std::collections::{BTreeMap, HashSet};
 use std::io::{BufRead, Write};
 use std::path::{Path, PathBuf};
 
@@ -219,11 +219,13 @@ pub fn join(spec: &JoinSpec<'_>) -> Result<JoinSummary, JoinError> {
     // (line, shard, takes) for every clip done, and (line, shard) for every reject.
     let mut clips: Vec<(usize, usize, usize)> = Vec::new();
     let mut rejects: Vec<(usize, usize)> = Vec::new();
-    let mut keep_records: Vec<String> = Vec::new();
+    // Hashes of the completion records the shards list (the others in .done/ are earlier).
+    let mut records_done: HashSet<u64> = HashSet::new();
     for r in &records {
         for (line, takes, record) in &r.clips {
             clips.push((*line, r.shard, *takes));
-            keep_records.push(record.clone());
+            earlier.keep(record);
+            records_done.insert(crate::seed::stable_hash(&[record.as_bytes()]));
         }
         rejects.extend(r.rejects.iter().map(|&l| (l, r.shard)));
     }
@@ -237,7 +239,6 @@ pub fn join(spec: &JoinSpec<'_>) -> Result<JoinSummary, JoinError> {
         count: r.shards,
     };
     let mut take_readers = open_parts(spec.out, &records, |n| n.manifest())?;
-    let mut keep_files: BTreeSet<String> = BTreeSet::new();
     let manifest_path = spec.out.join(MANIFEST_NAME);
     let mut damaged = Vec::new();
     files::write_atomically(&manifest_path, |w| {
@@ -249,7 +250,7 @@ pub fn join(spec: &JoinSpec<'_>) -> Result<JoinSummary, JoinError> {
                     return Ok(());
                 };
                 if let Ok(clip) = parse_clip(&line) {
-                    keep_files.extend(take_files(&clip).map(str::to_string));
+                    take_files(&clip).for_each(|f| earlier.keep(f));
                 }
                 summary.takes += 1;
                 w.write_all(line.as_bytes())?;
@@ -294,13 +295,8 @@ pub fn join(spec: &JoinSpec<'_>) -> Result<JoinSummary, JoinError> {
         });
     }
 
-    add_unlisted_records(&mut earlier, &spec.out.join(DONE_DIR));
-    let keep: HashSet<&str> = keep_files
-        .iter()
-        .map(String::as_str)
-        .chain(keep_records.iter().map(String::as_str))
-        .collect();
-    summary.removed = earlier.finish(&keep).map_err(io(spec.out))?;
+    add_unlisted_records(&mut earlier, &spec.out.join(DONE_DIR), &records_done);
+    summary.removed = earlier.finish(&HashSet::new()).map_err(io(spec.out))?;
     for m in set_aside {
         remove_if_there(&m).map_err(io(&m))?;
     }

@@ -19,7 +19,7 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use crate::audio::{self, STEM_FORMAT};
-use crate::files::{self, WriteError, file_stem, write_audio_atomically};
+use crate::files::{self, AtomicFile, WriteError, file_stem, write_audio_atomically};
 use crate::outdir::SharedFolderLock;
 use crate::outdir::earlier::JOURNAL_NAME;
 use crate::outdir::{
@@ -27,9 +27,10 @@ use crate::outdir::{
 };
 use crate::parts::{PARTS_DIR, PartNames, PartRecord, earlier_manifest_name};
 use crate::recipe::Plan;
-use crate::shard::Shard;
+use crate::shard::{Shard, Unit, assign};
 use crate::take::{at_plan_rate, make_take};
-use crate::transcript::{Clip, Entry, Manifest, Problem, read_manifest, validate, write_manifest};
+use crate::transcript::stream::ManifestStream;
+use crate::transcript::{Clip, Entry, Problem, read_manifest, validate, write_manifest};
 use serde_json::Value;
 
 /// Name of the output manifest inside the output folder.
@@ -213,41 +214,20 @@ impl From<Problem> for Reject {
 /// far are kept for the next run of the same command.
 pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summary, RunError> {
     let started = Instant::now();
-    let mut manifest = read_manifest(spec.input).map_err(|source| RunError::Manifest {
+    let manifest_err = |source| RunError::Manifest {
         path: spec.input.to_path_buf(),
         source,
-    })?;
-    let input_key = input_key(spec.input).map_err(|source| RunError::Manifest {
-        path: spec.input.to_path_buf(),
-        source,
-    })?;
-    if let Some(shard) = spec.shard {
-        crate::shard::keep(&mut manifest, shard);
-    }
+    };
+    refuse_not_a_manifest(spec.input).map_err(manifest_err)?;
     let plan_inputs = spec.plan.inputs();
     let targets = Targets::new(
         spec.out,
         &[MANIFEST_NAME, REJECTS_NAME, LOCK_NAME, JOURNAL_NAME],
         &[TAKES_DIR, DONE_DIR, PARTS_DIR],
     );
-    let audio: Vec<(String, PathBuf)> = manifest
-        .entries
-        .iter()
-        .map(|e| {
-            let what = format!("audio of clip `{}` (line {})", e.clip.id, e.line);
-            (what, manifest.base().join(&e.clip.audio))
-        })
-        .collect();
-    let named = [("input manifest".to_string(), spec.input)]
-        .into_iter()
-        .chain(spec.recipe.map(|r| ("recipe".to_string(), r)))
-        .chain(
-            plan_inputs
-                .iter()
-                .map(|p| ("file the recipe reads".into(), p.as_path())),
-        )
-        .chain(audio.iter().map(|(w, p)| (w.clone(), p.as_path())));
-    refuse_overwrite(&targets, named)?;
+    // First pass over the manifest, as a stream: the input's fingerprint, every audio file
+    // against the output folder, the lines' shards.
+    let survey = survey(spec, &targets, &plan_inputs)?;
     let part = spec.shard.map(PartNames::of);
     let _lock = match &part {
         None => (Some(FolderLock::acquire(spec.out)?), None, None),
@@ -301,91 +281,133 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
             reason: e.to_string(),
         })?;
     on_event(Event::Started {
-        clips: manifest.entries.len(),
+        clips: survey.clips,
     });
-    let ctx = ClipContext {
-        plan: spec.plan,
-        manifest: &manifest,
-        out: spec.out,
-        plan_key: plan_key(spec.plan, &plan_inputs),
-        clip_memory_limit: spec.clip_memory_limit,
-    };
-    let results: Vec<Result<ClipResult, Reject>> = pool.install(|| {
-        manifest
-            .entries
-            .par_iter()
-            .map(|entry| {
-                let r = match process_clip(&ctx, entry) {
-                    Ok(done) => Ok(Ok(done)),
-                    Err(Failure::Reject(r)) => Ok(Err(r)),
-                    Err(Failure::Stop(e)) => Err(e),
-                };
-                if let Ok(r) = &r {
-                    on_event(Event::ClipDone { ok: r.is_ok() });
-                }
-                r
-            })
-            .collect::<Result<_, RunError>>()
-    })?;
-
-    let mut summary = Summary {
-        clips_in: manifest.entries.len() + manifest.problems.len(),
-        ..Summary::default()
-    };
-    let mut takes = Vec::new();
-    let mut records = Vec::new();
-    let mut order = Vec::new();
-    let mut rejects: Vec<Reject> = manifest
-        .problems
-        .iter()
-        .cloned()
-        .map(Reject::from)
-        .collect();
-    for result in results {
-        match result {
-            Ok(done) => {
-                let seconds: f64 = done.takes.iter().filter_map(|c| c.duration).sum();
-                summary.clips_done += 1;
-                summary.seconds_in += done.seconds_in;
-                summary.takes += done.takes.len();
-                summary.seconds_out += seconds;
-                if done.resumed {
-                    summary.clips_resumed += 1;
-                    summary.takes_kept += done.takes.len();
-                    summary.seconds_in_kept += done.seconds_in;
-                    summary.seconds_out_kept += seconds;
-                }
-                order.push((done.line, done.takes.len(), done.record.clone()));
-                records.push(done.record);
-                takes.extend(done.takes);
-            }
-            Err(reject) => rejects.push(reject),
-        }
-    }
-    rejects.sort_by_key(|r| r.line);
-    summary.rejected = rejects.len();
-    files::sync_dir(&done_dir).map_err(RunError::output(&done_dir))?;
     let (manifest_name, rejects_name) = match &part {
         None => (MANIFEST_NAME.to_string(), REJECTS_NAME.to_string()),
         Some(names) => (names.manifest(), names.rejects()),
     };
-    write_atomically(&spec.out.join(manifest_name), |w| write_manifest(w, &takes))?;
-    write_atomically(&spec.out.join(rejects_name), |w| {
-        for r in &rejects {
-            serde_json::to_writer(&mut *w, r)?;
-            w.write_all(b"\n")?;
+    let manifest_path = spec.out.join(manifest_name);
+    let rejects_path = spec.out.join(rejects_name);
+    let mut takes_out =
+        AtomicFile::create(&manifest_path).map_err(RunError::output(&manifest_path))?;
+    let mut rejects_out =
+        AtomicFile::create(&rejects_path).map_err(RunError::output(&rejects_path))?;
+    let mut stream = ManifestStream::open(spec.input).map_err(manifest_err)?;
+    let base = stream.base().to_path_buf();
+    let ctx = ClipContext {
+        plan: spec.plan,
+        base: &base,
+        out: spec.out,
+        plan_key: plan_key(spec.plan, &plan_inputs),
+        clip_memory_limit: spec.clip_memory_limit,
+    };
+
+    let mut summary = Summary::default();
+    // Per clip done, for a shard's record: (line, takes, completion record).
+    let mut order = Vec::new();
+    let mut reject_lines = Vec::new();
+    // Hashes of the completion records this run made or kept (the rest are earlier files).
+    let mut records_done: HashSet<u64> = HashSet::new();
+    // The bounded reorder window: clips are read, made in parallel and written in input
+    // order a window at a time, so memory holds one window, whatever the clip count.
+    let window = WINDOW_PER_THREAD * pool.current_num_threads().max(1);
+    loop {
+        let mut entries = Vec::with_capacity(window);
+        let mut rejects: Vec<Reject> = Vec::new();
+        while entries.len() + rejects.len() < window {
+            let Some(item) = stream.next_item().map_err(manifest_err)? else {
+                break;
+            };
+            let line = match &item {
+                Ok(e) => e.line,
+                Err(p) => p.line,
+            };
+            if !survey.mine(line) {
+                continue;
+            }
+            summary.clips_in += 1;
+            match item {
+                Ok(e) => entries.push(e),
+                Err(p) => rejects.push(Reject::from(p)),
+            }
         }
-        Ok(())
-    })?;
+        if entries.is_empty() && rejects.is_empty() {
+            break;
+        }
+        let results: Vec<Result<ClipResult, Reject>> = pool.install(|| {
+            entries
+                .par_iter()
+                .map(|entry| {
+                    let r = match process_clip(&ctx, entry) {
+                        Ok(done) => Ok(Ok(done)),
+                        Err(Failure::Reject(r)) => Ok(Err(r)),
+                        Err(Failure::Stop(e)) => Err(e),
+                    };
+                    if let Ok(r) = &r {
+                        on_event(Event::ClipDone { ok: r.is_ok() });
+                    }
+                    r
+                })
+                .collect::<Result<_, RunError>>()
+        })?;
+        for result in results {
+            match result {
+                Ok(done) => {
+                    let seconds: f64 = done.takes.iter().filter_map(|c| c.duration).sum();
+                    summary.clips_done += 1;
+                    summary.seconds_in += done.seconds_in;
+                    summary.takes += done.takes.len();
+                    summary.seconds_out += seconds;
+                    if done.resumed {
+                        summary.clips_resumed += 1;
+                        summary.takes_kept += done.takes.len();
+                        summary.seconds_in_kept += done.seconds_in;
+                        summary.seconds_out_kept += seconds;
+                    }
+                    for f in done.takes.iter().flat_map(take_files) {
+                        earlier.keep(f);
+                    }
+                    earlier.keep(&done.record);
+                    records_done.insert(crate::seed::stable_hash(&[done.record.as_bytes()]));
+                    write_manifest(takes_out.writer(), &done.takes)
+                        .map_err(RunError::output(&manifest_path))?;
+                    if part.is_some() {
+                        order.push((done.line, done.takes.len(), done.record));
+                    }
+                }
+                Err(reject) => rejects.push(reject),
+            }
+        }
+        rejects.sort_by_key(|r| r.line);
+        summary.rejected += rejects.len();
+        for r in &rejects {
+            let w = rejects_out.writer();
+            serde_json::to_writer(&mut *w, r)
+                .map_err(std::io::Error::from)
+                .and_then(|()| w.write_all(b"\n"))
+                .map_err(RunError::output(&rejects_path))?;
+            if part.is_some() {
+                reject_lines.push(r.line);
+            }
+        }
+    }
+    files::sync_dir(&done_dir).map_err(RunError::output(&done_dir))?;
+    takes_out
+        .commit()
+        .map_err(RunError::output(&manifest_path))?;
+    rejects_out
+        .commit()
+        .map_err(RunError::output(&rejects_path))?;
     if let (Some(names), Some(shard)) = (&part, spec.shard) {
         // Written last: its presence says the shard finished.
         let record = PartRecord {
             shard: shard.index,
             shards: shard.count,
             recipe: format!("{:016x}", ctx.plan_key),
-            input: format!("{input_key:016x}"),
+            input: format!("{:016x}", survey.input_key),
             clips: order,
-            rejects: rejects.iter().map(|r| r.line).collect(),
+            rejects: reject_lines,
         };
         write_atomically(&spec.out.join(names.record()), |w| {
             serde_json::to_writer(&mut *w, &record)?;
@@ -395,16 +417,110 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
         // Records of clips not done now (dropped from the input, rejected, made by another
         // plan) and the takes they list are earlier files too. A shard leaves them to the
         // join: they may be another shard's.
-        add_unlisted_records(&mut earlier, &done_dir);
+        add_unlisted_records(&mut earlier, &done_dir, &records_done);
     }
-    let keep: HashSet<&str> = takes
-        .iter()
-        .flat_map(take_files)
-        .chain(records.iter().map(String::as_str))
-        .collect();
-    summary.removed = earlier.finish(&keep).map_err(RunError::output(spec.out))?;
+    summary.removed = earlier
+        .finish(&HashSet::new())
+        .map_err(RunError::output(spec.out))?;
     summary.wall_seconds = started.elapsed().as_secs_f64();
     Ok(summary)
+}
+
+/// Clips in the reorder window per worker thread: enough that a slow clip rarely leaves a
+/// worker idle at the end of a window, few enough that a window's records stay small.
+const WINDOW_PER_THREAD: usize = 64;
+
+/// What the first pass over the manifest found.
+struct Survey {
+    /// Fingerprint of the manifest's bytes.
+    input_key: u64,
+    /// Lines this run makes (a shard's share, or all).
+    clips: usize,
+    /// The shard of every line and this run's shard, for a shard run.
+    owner: Option<(Vec<u32>, usize)>,
+}
+
+impl Survey {
+    /// Whether line `line` (from 1) is this run's.
+    fn mine(&self, line: usize) -> bool {
+        match &self.owner {
+            None => true,
+            Some((owner, index)) => {
+                line.checked_sub(1)
+                    .and_then(|i| owner.get(i))
+                    .map(|&o| o as usize)
+                    == Some(*index)
+            }
+        }
+    }
+}
+
+/// The first pass: the input's fingerprint, every clip's audio (and the recipe and the
+/// files it reads) refused when the output would overwrite it, and each line's shard.
+fn survey(
+    spec: &RunSpec<'_>,
+    targets: &Targets,
+    plan_inputs: &[PathBuf],
+) -> Result<Survey, RunError> {
+    let manifest_err = |source| RunError::Manifest {
+        path: spec.input.to_path_buf(),
+        source,
+    };
+    let input_key = input_key(spec.input).map_err(manifest_err)?;
+    let named = [("input manifest".to_string(), spec.input.to_path_buf())]
+        .into_iter()
+        .chain(spec.recipe.map(|r| ("recipe".to_string(), r.to_path_buf())))
+        .chain(
+            plan_inputs
+                .iter()
+                .map(|p| ("file the recipe reads".into(), p.clone())),
+        );
+    refuse_overwrite(targets, named)?;
+    let mut stream = ManifestStream::open(spec.input).map_err(manifest_err)?;
+    let base = stream.base().to_path_buf();
+    let mut units = Vec::new();
+    let mut lines = 0;
+    while let Some(item) = stream.next_item().map_err(manifest_err)? {
+        lines += 1;
+        match item {
+            Err(_) => units.push(Unit::Bad),
+            Ok(entry) => {
+                units.push(Unit::Clip(entry.clip.duration));
+                let what = format!("audio of clip `{}` (line {})", entry.clip.id, entry.line);
+                refuse_overwrite(targets, [(what, base.join(&entry.clip.audio))])?;
+            }
+        }
+    }
+    let (clips, owner) = match spec.shard {
+        None => (lines, None),
+        Some(shard) => {
+            let owner: Vec<u32> = assign(&units, shard.count)
+                .into_iter()
+                .map(|s| s as u32)
+                .collect();
+            let mine = owner.iter().filter(|&&o| o as usize == shard.index).count();
+            (mine, Some((owner, shard.index)))
+        }
+    };
+    Ok(Survey {
+        input_key,
+        clips,
+        owner,
+    })
+}
+
+/// A file none of whose first lines is a clip is checked whole ([`read_manifest`]), so a
+/// recipe or a JSON document given as the manifest is refused as such, not line by line.
+fn refuse_not_a_manifest(input: &Path) -> std::io::Result<()> {
+    let mut stream = ManifestStream::open(input)?;
+    for _ in 0..64 {
+        match stream.next_item()? {
+            None => break,
+            Some(Ok(_)) => return Ok(()),
+            Some(Err(_)) => {}
+        }
+    }
+    read_manifest(input).map(|_| ())
 }
 
 /// Why a clip did not finish: a reject (the run goes on) or a failure of the output that
@@ -432,11 +548,25 @@ pub(crate) fn write_failure<R>(
     }
 }
 
-/// The fingerprint of the input manifest's bytes, which every shard of one run shares.
+/// The fingerprint of the input manifest's bytes, which every shard of one run shares
+/// (the first 64 bits of their SHA-256, read as a stream).
 pub(crate) fn input_key(input: &Path) -> std::io::Result<u64> {
-    Ok(crate::seed::stable_hash(&[&crate::input_file::read(
-        input,
-    )?]))
+    use sha2::Digest;
+    use std::io::Read;
+    let mut file = crate::input_file::open(input)?;
+    let mut hash = sha2::Sha256::new();
+    let mut buf = vec![0u8; 1 << 16];
+    loop {
+        let n = file.read(&mut buf)?;
+        if n == 0 {
+            break;
+        }
+        hash.update(&buf[..n]);
+    }
+    let digest = hash.finalize();
+    let mut first = [0u8; 8];
+    first.copy_from_slice(&digest[..8]);
+    Ok(u64::from_le_bytes(first))
 }
 
 /// The lock file's name inside `parts/`.
@@ -456,10 +586,10 @@ pub(crate) fn earlier_files(c: &Clip) -> Vec<String> {
     }
 }
 
-/// Completion records in `.done/` and the takes they list, as earlier files: those not made
-/// again are removed at the end.
-pub(crate) fn add_unlisted_records(earlier: &mut Earlier, done_dir: &Path) {
-    for (rel, record) in earlier_records(done_dir) {
+/// Completion records in `.done/` that this run did not make or keep (`done` holds the
+/// hashes of those it did) and the takes they list, as earlier files: removed at the end.
+pub(crate) fn add_unlisted_records(earlier: &mut Earlier, done_dir: &Path, done: &HashSet<u64>) {
+    for (rel, record) in earlier_records(done_dir, done) {
         earlier.add(rel);
         for f in record.takes.iter().flat_map(take_files) {
             earlier.add(f.to_string());
@@ -497,7 +627,8 @@ pub(crate) fn remove_if_there(path: &Path) -> std::io::Result<()> {
 /// What every clip of a run shares.
 struct ClipContext<'a> {
     plan: &'a Plan,
-    manifest: &'a Manifest,
+    /// The folder the manifest's audio paths are relative to.
+    base: &'a Path,
     out: &'a Path,
     /// [`plan_key`] of the run.
     plan_key: u64,
@@ -516,24 +647,30 @@ pub(crate) fn take_files(take: &Clip) -> impl Iterator<Item = &str> {
     std::iter::once(take.audio.as_str()).chain(stems)
 }
 
-/// Completion records in `.done/` (relative path, content); files there that do not read
-/// as one are not ours and are left alone.
-pub(crate) fn earlier_records(done_dir: &Path) -> Vec<(String, ClipResult)> {
-    let Ok(entries) = std::fs::read_dir(done_dir) else {
-        return Vec::new();
-    };
-    entries
+/// Completion records in `.done/` (relative path, content) but those whose path's hash is
+/// in `skip`, read one at a time; files there that do not read as one are not ours and
+/// are left alone.
+fn earlier_records<'a>(
+    done_dir: &Path,
+    skip: &'a HashSet<u64>,
+) -> impl Iterator<Item = (String, ClipResult)> + 'a {
+    std::fs::read_dir(done_dir)
+        .into_iter()
+        .flatten()
         .filter_map(Result::ok)
-        .filter_map(|e| {
+        .filter_map(move |e| {
             let name = e.file_name().into_string().ok()?;
             if !name.ends_with(".json") {
                 return None;
             }
+            let rel = format!("{DONE_DIR}/{name}");
+            if skip.contains(&crate::seed::stable_hash(&[rel.as_bytes()])) {
+                return None;
+            }
             let text = std::fs::read_to_string(e.path()).ok()?;
             let record: ClipResult = serde_json::from_str(&text).ok()?;
-            Some((format!("{DONE_DIR}/{name}"), record))
+            Some((rel, record))
         })
-        .collect()
 }
 
 /// The plan's fingerprint with the size and modification time of every file its steps
@@ -619,7 +756,7 @@ fn finished_earlier(record: &Path, fingerprint: &str, out: &Path, rate: u32) -> 
 }
 
 fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Failure> {
-    let (plan, manifest, out) = (ctx.plan, ctx.manifest, ctx.out);
+    let (plan, out) = (ctx.plan, ctx.out);
     let clip = &entry.clip;
     let reject = |field: &str, reason: String| {
         Failure::Reject(Reject {
@@ -632,7 +769,7 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
     if let Some((field, reason)) = validate(clip, None).into_iter().next() {
         return Err(reject(&field, reason));
     }
-    let path = manifest.base().join(&clip.audio);
+    let path = ctx.base.join(&clip.audio);
     // Before anything is decoded: a clip the memory model says will not fit is a reject.
     if let Some(why) = crate::memory::clip_seconds(clip.duration, &path)
         .and_then(|secs| crate::memory::over_limit(plan, secs, ctx.clip_memory_limit))

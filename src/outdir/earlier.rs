@@ -104,6 +104,12 @@ impl Earlier {
         }
     }
 
+    /// A file the new run made again (relative to the output folder): it is not removed at
+    /// the end. Calling this as files are made keeps memory to the earlier files alone.
+    pub fn keep(&mut self, rel: &str) {
+        self.files.remove(rel);
+    }
+
     fn owned(&self, rel: &str) -> bool {
         let parts: Vec<Component<'_>> = Path::new(rel).components().collect();
         matches!(parts.as_slice(), [Component::Normal(dir), Component::Normal(_)]
