@@ -64,11 +64,12 @@ pub fn step_factor(name: &str) -> f64 {
 }
 
 /// Extra clip-length buffers the writer of `format` needs: WAV is written in chunks (0);
-/// FLAC holds the integer codes twice (ours and the encoder's copy) and the encoded stream.
+/// FLAC holds the integer codes twice (ours and the encoder's copy) and the encoded stream
+/// (measured 3.2 with a gain step, 600 s at 16 kHz).
 pub fn writer_factor(format: SampleFormat) -> f64 {
     match format.spec().container {
         Container::Wav => 0.0,
-        Container::Flac => 2.5,
+        Container::Flac => 3.5,
     }
 }
 
@@ -159,7 +160,7 @@ mod tests {
         );
         assert_eq!(bytes_per_second(&masked), 64_000.0 * 9.0);
         let flac = plan("[[step]]\ndo = \"gain\"\ndb = 1.0\n", "flac16");
-        assert_eq!(bytes_per_second(&flac), 64_000.0 * 4.5);
+        assert_eq!(bytes_per_second(&flac), 64_000.0 * 5.5);
         // Two hours under speed and gain: the 1.3 GB measured, 1.6 GB predicted.
         let speed = plan(
             "[[step]]\ndo = \"speed\"\nfactor = 0.9\n[[step]]\ndo = \"gain\"\ndb = 1.0\n",

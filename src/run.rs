@@ -3,8 +3,10 @@
 //! Clips are processed in parallel (rayon); each take is fixed by its seed alone, so the
 //! output is byte-identical whatever the thread count. Audio is written under a temporary
 //! name and renamed; a clip that fails has its finished takes removed and goes to
-//! `rejects.jsonl` with the reason, and the run goes on. The manifest and rejects are
-//! written in input order at the end, also by rename.
+//! `rejects.jsonl` with the reason, and the run goes on. The manifest is read as a stream
+//! and clips are made a bounded window at a time; the manifest and rejects are written in
+//! input order as each window finishes, under temporary names renamed at the end, so
+//! memory does not grow with the number of clips.
 //!
 //! A shard run ([`RunSpec::shard`]) makes only its share of the clips ([`crate::shard`]) and
 //! writes its manifest and rejects as parts under `parts/` ([`crate::parts`]), beside the
@@ -434,7 +436,7 @@ const WINDOW_PER_THREAD: usize = 64;
 struct Survey {
     /// Fingerprint of the manifest's bytes.
     input_key: u64,
-    /// Lines this run makes (a shard's share, or all).
+    /// Clips this run makes (a shard's share, or all; bad lines not counted).
     clips: usize,
     /// The shard of every line and this run's shard, for a shard run.
     owner: Option<(Vec<u32>, usize)>,
@@ -478,27 +480,37 @@ fn survey(
     refuse_overwrite(targets, named)?;
     let mut stream = ManifestStream::open(spec.input).map_err(manifest_err)?;
     let base = stream.base().to_path_buf();
+    // Only a shard run keeps a unit per line (to balance the shards).
     let mut units = Vec::new();
-    let mut lines = 0;
+    let mut clips = 0;
+    let keep_units = spec.shard.is_some();
     while let Some(item) = stream.next_item().map_err(manifest_err)? {
-        lines += 1;
         match item {
-            Err(_) => units.push(Unit::Bad),
+            Err(_) if keep_units => units.push(Unit::Bad),
+            Err(_) => {}
             Ok(entry) => {
-                units.push(Unit::Clip(entry.clip.duration));
+                clips += 1;
+                if keep_units {
+                    units.push(Unit::Clip(entry.clip.duration));
+                }
                 let what = format!("audio of clip `{}` (line {})", entry.clip.id, entry.line);
                 refuse_overwrite(targets, [(what, base.join(&entry.clip.audio))])?;
             }
         }
     }
+    let is_clip = |u: &Unit| matches!(u, Unit::Clip(_));
     let (clips, owner) = match spec.shard {
-        None => (lines, None),
+        None => (clips, None),
         Some(shard) => {
             let owner: Vec<u32> = assign(&units, shard.count)
                 .into_iter()
                 .map(|s| s as u32)
                 .collect();
-            let mine = owner.iter().filter(|&&o| o as usize == shard.index).count();
+            let mine = owner
+                .iter()
+                .zip(&units)
+                .filter(|(o, u)| **o as usize == shard.index && is_clip(u))
+                .count();
             (mine, Some((owner, shard.index)))
         }
     };

@@ -19,14 +19,7 @@ fn run_format(dir: &Path, format: &str) -> PathBuf {
         .replace("NOISE", &demo().join("noise").display().to_string());
     std::fs::write(&recipe, text).unwrap();
     let out = dir.join(format);
-    let o = retake(&[
-        "run",
-        recipe.to_str().unwrap(),
-        "-i",
-        demo().join("manifest.jsonl").to_str().unwrap(),
-        "-o",
-        out.to_str().unwrap(),
-    ]);
+    let o = run_demo(&recipe, &out);
     assert_eq!(
         o.status.code(),
         Some(0),
@@ -34,6 +27,18 @@ fn run_format(dir: &Path, format: &str) -> PathBuf {
         String::from_utf8_lossy(&o.stderr)
     );
     out
+}
+
+/// `retake run RECIPE` over the demo clips into `out`.
+fn run_demo(recipe: &Path, out: &Path) -> std::process::Output {
+    retake(&[
+        "run",
+        recipe.to_str().unwrap(),
+        "-i",
+        demo().join("manifest.jsonl").to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+    ])
 }
 
 /// Per take (paths relative to the folders given): the subtype libsndfile reports for each
@@ -141,15 +146,7 @@ fn a_rerun_keeps_whole_flac_takes_and_remakes_a_damaged_one() {
     let mut damaged = before.clone();
     damaged[21] ^= 0x01;
     std::fs::write(&take, &damaged).unwrap();
-    let recipe = tmp.path().join("flac24.toml");
-    let o = retake(&[
-        "run",
-        recipe.to_str().unwrap(),
-        "-i",
-        demo().join("manifest.jsonl").to_str().unwrap(),
-        "-o",
-        out.to_str().unwrap(),
-    ]);
+    let o = run_demo(&tmp.path().join("flac24.toml"), &out);
     let said = String::from_utf8_lossy(&o.stdout);
     assert_eq!(o.status.code(), Some(0), "{said}");
     assert!(said.contains("kept    9 clips (18 takes"), "{said}");
