@@ -251,6 +251,9 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
         for dir in [spec.out, &takes_dir, &done_dir] {
             files::remove_stale_temp_files(dir).map_err(RunError::output(dir))?;
         }
+        // A whole run remakes takes that shards' parts may list: those parts can no longer
+        // be joined (their records go; the join then calls those shards unfinished).
+        retire_part_records(spec.out).map_err(RunError::output(spec.out))?;
     }
     let mut earlier = match &part {
         None => Earlier::begin(
@@ -626,6 +629,24 @@ fn set_joined_aside(out: &Path) -> std::io::Result<()> {
     }
     remove_if_there(&out.join(REJECTS_NAME))?;
     files::sync_dir(out)
+}
+
+/// Remove the shards' records (`parts/<k>-of-<n>.json`), nothing else.
+fn retire_part_records(out: &Path) -> std::io::Result<()> {
+    let Ok(entries) = std::fs::read_dir(out.join(PARTS_DIR)) else {
+        return Ok(());
+    };
+    for e in entries.filter_map(Result::ok) {
+        let is_record = e
+            .file_name()
+            .to_str()
+            .and_then(crate::parts::parse_part_name)
+            .is_some_and(|(_, _, tail)| tail == ".json");
+        if is_record {
+            remove_if_there(&e.path())?;
+        }
+    }
+    Ok(())
 }
 
 /// Remove a file; one already gone is fine.

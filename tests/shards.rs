@@ -201,6 +201,22 @@ fn a_sharded_rerun_removes_what_an_earlier_whole_run_made_and_it_did_not() {
         left.iter().all(|n| !n.starts_with("earlier-")),
         "the set-aside manifest is gone after the join: {left:?}"
     );
+
+    // A whole run into the folder remakes the takes: the old parts can no longer be joined.
+    let o = run(&three, &input, &out, &[]);
+    assert_eq!(o.status.code(), Some(3), "{}", stderr(&o));
+    let o = join(&recipe, &input, &out);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(
+        stderr(&o).contains("shard 0/2 did not finish"),
+        "{}",
+        stderr(&o)
+    );
+    assert_eq!(
+        read_jsonl(&out.join("manifest.jsonl")).len(),
+        30,
+        "the whole run's manifest stays"
+    );
 }
 
 #[test]
