@@ -33,6 +33,7 @@ pub mod export;
 pub mod files;
 pub mod import;
 pub mod input_file;
+pub mod keys;
 pub mod noise;
 pub mod outdir;
 pub mod recipe;
