@@ -19,8 +19,21 @@ pub struct RecipeError {
     pub path: PathBuf,
     /// 1-based line of the offending key or value, when known.
     pub line: Option<usize>,
+    /// The key at fault as the recipe writes it (`takes`, `db`, `do`), or empty when the
+    /// problem is the file itself (unreadable, not TOML).
+    pub field: String,
+    /// The 1-based step number when the key is inside a `[[step]]` table.
+    pub step: Option<usize>,
     /// What is wrong, starting with where in the recipe (`step 2 (gain): db: ...`).
     pub message: String,
+}
+
+impl RecipeError {
+    /// The same error, placed inside step `n` (1-based).
+    pub(crate) fn in_step(mut self, n: usize) -> Self {
+        self.step = Some(n);
+        self
+    }
 }
 
 /// How one step parameter is chosen per take.
@@ -74,6 +87,8 @@ impl Draw {
 pub struct Params<'a> {
     pub(crate) ctx: &'a Ctx<'a>,
     pub(crate) label: String,
+    /// The step's 1-based number, for errors.
+    pub(crate) step: usize,
     pub(crate) table: &'a DeTable<'a>,
     pub(crate) table_line: usize,
     /// The keys this kind of step reads, from the step registry.
@@ -95,10 +110,12 @@ impl Ctx<'_> {
             + 1
     }
 
-    pub(crate) fn err(&self, line: Option<usize>, message: String) -> RecipeError {
+    pub(crate) fn err(&self, line: Option<usize>, field: &str, message: String) -> RecipeError {
         RecipeError {
             path: self.path.to_path_buf(),
             line,
+            field: field.to_string(),
+            step: None,
             message,
         }
     }
@@ -110,10 +127,13 @@ impl<'a> Params<'a> {
         let line = self
             .find(key)
             .map(|(k, _)| self.ctx.line_of(k.span().start));
-        self.ctx.err(
-            Some(line.unwrap_or(self.table_line)),
-            format!("{}: {key}: {message}", self.label),
-        )
+        self.ctx
+            .err(
+                Some(line.unwrap_or(self.table_line)),
+                key,
+                format!("{}: {key}: {message}", self.label),
+            )
+            .in_step(self.step)
     }
 
     pub(crate) fn find(
@@ -202,14 +222,18 @@ impl<'a> Params<'a> {
             .map(|(k, _)| k.get_ref().as_ref())
             .filter(|name: &&str| !self.keys.contains(name) && *name != "do" && *name != "chance");
         match nearest(key, unknown) {
-            Some(name) => self.ctx.err(
-                self.find(name)
-                    .map(|(k, _)| self.ctx.line_of(k.span().start)),
-                format!(
-                    "{}: unknown key `{name}`; did you mean `{key}`? (this step needs `{key}`)",
-                    self.label
-                ),
-            ),
+            Some(name) => self
+                .ctx
+                .err(
+                    self.find(name)
+                        .map(|(k, _)| self.ctx.line_of(k.span().start)),
+                    name,
+                    format!(
+                        "{}: unknown key `{name}`; did you mean `{key}`? (this step needs `{key}`)",
+                        self.label
+                    ),
+                )
+                .in_step(self.step),
             None => self.error(key, "missing; this step needs it"),
         }
     }
@@ -360,14 +384,18 @@ impl<'a> Params<'a> {
                 let hint = nearest(name, unwritten)
                     .map(|k| format!("; did you mean `{k}`?"))
                     .unwrap_or_default();
-                return Err(self.ctx.err(
-                    Some(self.ctx.line_of(k.span().start)),
-                    format!(
-                        "{}: unknown key `{name}`{hint} (this step reads: {})",
-                        self.label,
-                        known.join(", ")
-                    ),
-                ));
+                return Err(self
+                    .ctx
+                    .err(
+                        Some(self.ctx.line_of(k.span().start)),
+                        name,
+                        format!(
+                            "{}: unknown key `{name}`{hint} (this step reads: {})",
+                            self.label,
+                            known.join(", ")
+                        ),
+                    )
+                    .in_step(self.step));
             }
         }
         Ok(())

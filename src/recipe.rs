@@ -116,6 +116,8 @@ pub fn load(path: &Path) -> Result<Plan, RecipeError> {
     let text = crate::input_file::read_to_string(path).map_err(|e| RecipeError {
         path: path.to_path_buf(),
         line: None,
+        field: String::new(),
+        step: None,
         message: format!("cannot read: {e}"),
     })?;
     parse(path, &text)
@@ -131,6 +133,7 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
         let line = e.span().map(|s| ctx.line_of(s.start));
         ctx.err(
             line,
+            "",
             syntax_message(e.message(), e.span().map(|s| &text[s])),
         )
     })?;
@@ -144,6 +147,7 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
         if !TOP_KEYS.contains(&k.get_ref().as_ref()) {
             return Err(ctx.err(
                 Some(ctx.line_of(k.span().start)),
+                k.get_ref().as_ref(),
                 format!(
                     "unknown key `{}` (a recipe reads: {})",
                     k.get_ref(),
@@ -154,13 +158,14 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
     }
     let whole = |key: &str, default: Option<u64>, min: u64, max: u64| -> Result<u64, RecipeError> {
         match at(key) {
-            None => default.ok_or_else(|| ctx.err(None, format!("{key}: missing"))),
+            None => default.ok_or_else(|| ctx.err(None, key, format!("{key}: missing"))),
             Some((line, v)) => {
-                let n =
-                    number(v.get_ref()).map_err(|m| ctx.err(Some(line), format!("{key}: {m}")))?;
+                let n = number(v.get_ref())
+                    .map_err(|m| ctx.err(Some(line), key, format!("{key}: {m}")))?;
                 if n.fract() != 0.0 || n < min as f64 || n > max as f64 {
                     return Err(ctx.err(
                         Some(line),
+                        key,
                         format!("{key}: {n} is not a whole number in {min}..={max}"),
                     ));
                 }
@@ -173,10 +178,13 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
     let rate = whole("rate", Some(16_000), 1_000, 384_000)? as u32;
     let keep_source = match at("keep_source") {
         None => false,
-        Some((line, v)) => v
-            .get_ref()
-            .as_bool()
-            .ok_or_else(|| ctx.err(Some(line), "keep_source: expected true or false".into()))?,
+        Some((line, v)) => v.get_ref().as_bool().ok_or_else(|| {
+            ctx.err(
+                Some(line),
+                "keep_source",
+                "keep_source: expected true or false".into(),
+            )
+        })?,
     };
     let format = match at("format") {
         None => SampleFormat::default(),
@@ -186,6 +194,7 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
             _ => {
                 return Err(ctx.err(
                     Some(line),
+                    "format",
                     "format: expected \"pcm16\" or \"float32\"".into(),
                 ));
             }
@@ -197,15 +206,20 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
             DeValue::String(s) if s == "mix" => ChannelPolicy::Mix,
             DeValue::Integer(_) => {
                 let n = number(v.get_ref())
-                    .map_err(|m| ctx.err(Some(line), format!("channels: {m}")))?;
+                    .map_err(|m| ctx.err(Some(line), "channels", format!("channels: {m}")))?;
                 if n < 0.0 {
-                    return Err(ctx.err(Some(line), format!("channels: channel {n} is negative")));
+                    return Err(ctx.err(
+                        Some(line),
+                        "channels",
+                        format!("channels: channel {n} is negative"),
+                    ));
                 }
                 ChannelPolicy::Pick(n as usize)
             }
             _ => {
                 return Err(ctx.err(
                     Some(line),
+                    "channels",
                     "channels: expected \"mix\" or a channel number counted from 0".into(),
                 ));
             }
@@ -220,50 +234,66 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
     let banks = crate::noise::BankCache::default();
     if let Some((line, v)) = at("step") {
         let Some(items) = v.get_ref().as_array() else {
-            return Err(ctx.err(Some(line), "step: expected [[step]] tables".into()));
+            return Err(ctx.err(Some(line), "step", "step: expected [[step]] tables".into()));
         };
         for (i, item) in items.iter().enumerate() {
             let item_line = ctx.line_of(item.span().start);
             let Some(table) = item.get_ref().as_table() else {
-                return Err(ctx.err(Some(item_line), format!("step {}: expected a table", i + 1)));
+                return Err(ctx
+                    .err(
+                        Some(item_line),
+                        "step",
+                        format!("step {}: expected a table", i + 1),
+                    )
+                    .in_step(i + 1));
             };
             let kind = table
                 .iter()
                 .find(|(k, _)| k.get_ref() == "do")
                 .map(|(_, v)| v);
             let Some(kind) = kind else {
-                return Err(ctx.err(
-                    Some(item_line),
-                    format!(
-                        "step {}: missing `do` (one of: {})",
-                        i + 1,
-                        steps::names().join(", ")
-                    ),
-                ));
+                return Err(ctx
+                    .err(
+                        Some(item_line),
+                        "do",
+                        format!(
+                            "step {}: missing `do` (one of: {})",
+                            i + 1,
+                            steps::names().join(", ")
+                        ),
+                    )
+                    .in_step(i + 1));
             };
             let kind_line = ctx.line_of(kind.span().start);
             let Some(name) = kind.get_ref().as_str() else {
-                return Err(ctx.err(
-                    Some(kind_line),
-                    format!("step {}: do: expected a step name", i + 1),
-                ));
+                return Err(ctx
+                    .err(
+                        Some(kind_line),
+                        "do",
+                        format!("step {}: do: expected a step name", i + 1),
+                    )
+                    .in_step(i + 1));
             };
             let Some(kind_row) = steps::kind(name) else {
                 let hint = nearest(name, steps::names())
                     .map(|n| format!("; did you mean `{n}`?"))
                     .unwrap_or_default();
-                return Err(ctx.err(
-                    Some(kind_line),
-                    format!(
-                        "step {}: do: unknown step `{name}`{hint} (one of: {})",
-                        i + 1,
-                        steps::names().join(", ")
-                    ),
-                ));
+                return Err(ctx
+                    .err(
+                        Some(kind_line),
+                        "do",
+                        format!(
+                            "step {}: do: unknown step `{name}`{hint} (one of: {})",
+                            i + 1,
+                            steps::names().join(", ")
+                        ),
+                    )
+                    .in_step(i + 1));
             };
             let mut params = Params {
                 ctx: &ctx,
                 label: format!("step {} ({name})", i + 1),
+                step: i + 1,
                 table,
                 table_line: item_line,
                 keys: kind_row.keys,
@@ -353,5 +383,22 @@ mod tests {
     fn syntax_error_has_a_line() {
         let e = parse_str("takes = 2\nrate = = 3\n").unwrap_err();
         assert_eq!(e.line, Some(2), "{e}");
+    }
+
+    #[test]
+    fn errors_name_their_key_and_step() {
+        let e = parse_str("seed = 1\ntakes = 0\n").unwrap_err();
+        assert_eq!((e.line, e.field.as_str(), e.step), (Some(2), "takes", None));
+        let e = parse_str("takes = 2\n\n[[step]]\ndo = \"gain\"\ndb = { low = 6, high = -6 }\n")
+            .unwrap_err();
+        assert_eq!((e.line, e.field.as_str(), e.step), (Some(5), "db", Some(1)));
+        let e = parse_str("takes = 2\n[[step]]\ndo = \"gain\"\ndb = 1\n[[step]]\ndo = \"spede\"\n")
+            .unwrap_err();
+        assert_eq!((e.line, e.field.as_str(), e.step), (Some(6), "do", Some(2)));
+        let e = parse_str("takes = 2\n[[step]]\ndo = \"speed\"\nfactr = 1.1\n").unwrap_err();
+        assert_eq!(
+            (e.line, e.field.as_str(), e.step),
+            (Some(4), "factr", Some(1))
+        );
     }
 }

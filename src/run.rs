@@ -14,14 +14,14 @@ use std::time::Instant;
 use rayon::prelude::*;
 use serde::Serialize;
 
-use crate::audio::{self, SampleFormat};
+use crate::audio::SampleFormat;
 use crate::files::{self, WriteError, file_stem, write_wav_atomically};
 use crate::outdir::earlier::JOURNAL_NAME;
 use crate::outdir::{
     Earlier, FolderLock, LOCK_NAME, LockError, Overwrite, Targets, refuse_overwrite,
 };
 use crate::recipe::Plan;
-use crate::take::{at_plan_rate, make_take};
+use crate::take::{load_source, make_take};
 use crate::transcript::{Clip, Entry, Manifest, Problem, read_manifest, validate, write_manifest};
 use serde_json::Value;
 
@@ -513,15 +513,8 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
         done.record = record_rel;
         return Ok(done);
     }
-    let source = audio::decode(&path, plan.channels)
-        .and_then(|a| audio::usable(&path, &audio::Scan::of(&a), Some(plan.rate)).map(|()| a))
-        .map_err(|e| reject("audio", e.to_string()))?;
-    if let Some((field, reason)) = validate(clip, Some(source.duration())).into_iter().next() {
-        return Err(reject(&field, reason));
-    }
-    let seconds_in = source.duration();
-    let source_rate = source.rate;
-    let base = at_plan_rate(source, plan);
+    let source = load_source(plan, clip, &path).map_err(|e| reject(&e.field, e.reason))?;
+    let (seconds_in, source_rate, base) = (source.seconds, source.rate, source.base);
 
     let mut written: Vec<PathBuf> = Vec::new();
     let mut takes = Vec::with_capacity(plan.takes as usize);

@@ -4,7 +4,9 @@
 
 use serde_json::Value;
 
-use crate::audio::Audio;
+use std::path::Path;
+
+use crate::audio::{self, Audio};
 use crate::dsp::resample::resample;
 use crate::recipe::Plan;
 use crate::run::TAKES_DIR;
@@ -41,6 +43,44 @@ fn fail(field: impl Into<String>, reason: String) -> TakeError {
         field: field.into(),
         reason,
     }
+}
+
+/// A clip's source as every take of it starts: decoded, checked, at the plan's rate.
+#[derive(Debug, Clone)]
+pub struct Source {
+    /// The source at the plan's rate (see [`at_plan_rate`]).
+    pub base: Audio,
+    /// The rate it was recorded at, which `origin` records.
+    pub rate: u32,
+    /// Its length in seconds before resampling.
+    pub seconds: f64,
+}
+
+/// Decode `path` as the plan says (its channel policy), refuse what no step can work on
+/// (empty, non-finite, see [`crate::audio::usable`]), check the clip's labels against the
+/// audio's length and bring it to the plan's rate. The batch engine and embedders both start
+/// every take here, so the same file gives the same takes.
+///
+/// # Errors
+/// Undecodable or unusable audio (field `audio`) or a label that does not fit it.
+pub fn load_source(plan: &Plan, clip: &Clip, path: &Path) -> Result<Source, TakeError> {
+    if let Some((field, reason)) = transcript::validate(clip, None).into_iter().next() {
+        return Err(fail(field, reason));
+    }
+    let source = audio::decode(path, plan.channels)
+        .and_then(|a| audio::usable(path, &audio::Scan::of(&a), Some(plan.rate)).map(|()| a))
+        .map_err(|e| fail("audio", e.to_string()))?;
+    if let Some((field, reason)) = transcript::validate(clip, Some(source.duration()))
+        .into_iter()
+        .next()
+    {
+        return Err(fail(field, reason));
+    }
+    Ok(Source {
+        seconds: source.duration(),
+        rate: source.rate,
+        base: at_plan_rate(source, plan),
+    })
 }
 
 /// A decoded source brought to the plan's rate, as every take starts from it.
