@@ -31,6 +31,7 @@ pub mod check;
 pub mod dsp;
 pub mod export;
 pub mod files;
+pub mod frames;
 pub mod import;
 pub mod input_file;
 pub mod keys;

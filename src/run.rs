@@ -21,7 +21,7 @@ use crate::outdir::{
     Earlier, FolderLock, LOCK_NAME, LockError, Overwrite, Targets, refuse_overwrite,
 };
 use crate::recipe::Plan;
-use crate::take::{load_source, make_take};
+use crate::take::{load_source, make_take, take_file};
 use crate::transcript::{Clip, Entry, Manifest, Problem, read_manifest, validate, write_manifest};
 use serde_json::Value;
 
@@ -519,10 +519,10 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
     let mut written: Vec<PathBuf> = Vec::new();
     let mut takes = Vec::with_capacity(plan.takes as usize);
     let outcome = (0..plan.takes).try_for_each(|k| {
-        let rel = format!("{TAKES_DIR}/{stem}.t{k}.wav");
         let take = make_take(plan, clip, &base, k, source_rate, &stem)
             .map_err(|e| reject(&e.field, e.reason))?;
         // Stems are float so that levels recomputed from them match what was measured.
+        let rel = take_file(&stem, k);
         let files = std::iter::once((&rel, &take.audio, plan.format)).chain(
             take.stems
                 .iter()
@@ -533,12 +533,7 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
                 .map_err(|e| write_failure(e, |m| reject("", m)))?;
             written.push(dest);
         }
-        takes.push(Clip {
-            id: format!("{}.t{k}", clip.id),
-            audio: rel,
-            duration: Some(take.audio.duration()),
-            ..take.clip
-        });
+        takes.push(take.record(k, &stem));
         Ok(())
     });
     let done = ClipResult {

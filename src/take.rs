@@ -27,6 +27,24 @@ pub struct Take {
     pub stems: Vec<(String, Audio)>,
 }
 
+/// Where take `k` of the clip whose file stem is `stem` is written inside an output folder.
+pub fn take_file(stem: &str, k: u32) -> String {
+    format!("{TAKES_DIR}/{stem}.t{k}.wav")
+}
+
+impl Take {
+    /// The take's manifest line as `retake run` writes it: id `<clip id>.t<k>`, audio at
+    /// [`take_file`], its duration, labels and origin.
+    pub fn record(&self, k: u32, stem: &str) -> Clip {
+        Clip {
+            id: format!("{}.t{k}", self.clip.id),
+            audio: take_file(stem, k),
+            duration: Some(self.audio.duration()),
+            ..self.clip.clone()
+        }
+    }
+}
+
 /// Why a take could not be made: the manifest field at fault (empty when the whole clip
 /// is) and the reason, in the user's terms.
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
