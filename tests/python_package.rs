@@ -75,3 +75,8 @@ fn thousands_of_takes_leave_memory_flat() {
 fn the_docs_training_loop_runs() {
     pytest("test_docs.py");
 }
+
+#[test]
+fn the_gil_is_released_while_takes_are_made() {
+    pytest("test_threads.py");
+}
