@@ -22,7 +22,8 @@ class RecipeError(RetakeError):
     step: Optional[int]
 
 class ClipError(RetakeError):
-    """A clip no take can be made of."""
+    """A clip no take can be made of; `kind` is "labels", "audio", "step" or "take"."""
+    kind: str
     file: Optional[str]
     line: Optional[int]
     field: Optional[str]

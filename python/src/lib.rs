@@ -15,7 +15,7 @@ use retake::audio::{self, Audio, SampleFormat};
 use retake::files::file_stem;
 use retake::frames::frame_targets;
 use retake::recipe::{self, Plan};
-use retake::take::{self, Take, TakeError};
+use retake::take::{self, ClipError as TakeFailure, ClipErrorKind, Take};
 use retake::transcript::{self, Clip, Entry};
 
 pyo3::create_exception!(
@@ -34,7 +34,7 @@ pyo3::create_exception!(
     _native,
     ClipError,
     RetakeError,
-    "A clip no take can be made of: `file`, `line` (manifest line) and `field` at fault."
+    "A clip no take can be made of: `file`, `line` (manifest line), `field` at fault, `kind` (labels, audio, step, take)."
 );
 pyo3::create_exception!(
     _native,
@@ -75,13 +75,21 @@ fn recipe_error(py: Python<'_>, e: &retake::recipe::RecipeError) -> PyErr {
 }
 
 /// A clip error: in a manifest (`file`, `line`) or from arrays (no file).
-fn clip_error(py: Python<'_>, at: Option<(&Path, usize)>, id: &str, e: &TakeError) -> PyErr {
+fn clip_error(py: Python<'_>, at: Option<(&Path, usize)>, id: &str, e: &TakeFailure) -> PyErr {
     let place = match at {
         Some((file, line)) => format!("{} line {line}: ", file.display()),
         None => String::new(),
     };
     let message = format!("{place}clip {id}: {e}");
-    located::<ClipError>(py, message, at.map(|a| a.0), at.map(|a| a.1), &e.field)
+    let err = located::<ClipError>(py, message, at.map(|a| a.0), at.map(|a| a.1), &e.field);
+    let kind = match e.kind {
+        ClipErrorKind::Labels => "labels",
+        ClipErrorKind::Audio => "audio",
+        ClipErrorKind::Step => "step",
+        ClipErrorKind::Take => "take",
+    };
+    let _ = err.value(py).setattr("kind", kind);
+    err
 }
 
 fn json_loads<'py>(py: Python<'py>, text: &str) -> PyResult<Bound<'py, PyAny>> {
@@ -251,24 +259,9 @@ impl Recipe {
         let samples = samples.as_slice()?.to_vec();
         let plan = self.plan.clone();
         let made = py.detach(move || {
-            let source = Audio { rate, samples };
-            let scan = audio::Scan::of(&source);
-            audio::usable(Path::new("<samples>"), &scan, Some(plan.rate))
-                .map_err(|e| TakeError {
-                    field: "samples".into(),
-                    reason: e.to_string(),
-                })
-                .and_then(|()| {
-                    if let Some((field, reason)) =
-                        transcript::validate(&clip, Some(source.duration()))
-                            .into_iter()
-                            .next()
-                    {
-                        return Err(TakeError { field, reason });
-                    }
-                    let base = take::at_plan_rate(source, &plan);
-                    take::make_take(&plan, &clip, &base, k, rate, &file_stem(&clip.id))
-                })
+            let source =
+                take::source_of(&plan, &clip, Audio { rate, samples }, "<samples>".as_ref())?;
+            take::make_take(&plan, &clip, &source.base, k, rate, &file_stem(&clip.id))
         });
         let made = made.map_err(|e| clip_error(py, None, &clip_id, &e))?;
         PyTake::new(py, made, k, self.plan.format)
@@ -296,7 +289,7 @@ impl Recipe {
 }
 
 /// Decode, check and make take `k`: the engine's own path for one take.
-fn take_from_file(plan: &Plan, clip: &Clip, path: &Path, k: u32) -> Result<Take, TakeError> {
+fn take_from_file(plan: &Plan, clip: &Clip, path: &Path, k: u32) -> Result<Take, TakeFailure> {
     let source = take::load_source(plan, clip, path)?;
     take::make_take(
         plan,

@@ -42,7 +42,8 @@ def test_a_nan_clip_raises_clip_error_and_the_interpreter_goes_on(tmp_path):
     x[1234] = np.nan
     with pytest.raises(retake.ClipError) as info:
         recipe.make_take(x, 16000, "nan-clip", k=1)
-    assert info.value.field == "samples" and "sample 1234" in str(info.value)
+    assert info.value.field == "audio" and "sample 1234" in str(info.value)
+    assert info.value.kind == "audio"
 
     # From a file in a manifest: the error names the manifest line, as rejects.jsonl does.
     sf.write(tmp_path / "nan.wav", x, 16000, subtype="FLOAT")
@@ -70,7 +71,7 @@ def test_bad_labels_and_manifests_raise(tmp_path):
     with pytest.raises(retake.ClipError) as info:
         recipe.make_take(np.zeros(8000, np.float32), 8000, "a",
                          lines=[{"start": 0.4, "end": 0.2, "text": "late"}])
-    assert info.value.field.startswith("lines[0]")
+    assert info.value.field.startswith("lines[0]") and info.value.kind == "labels"
     bad = tmp_path / "bad.jsonl"
     bad.write_text('{"id": "a", "audio": "a.wav", "text": "x"}\n{"id": "b", "audio": 3}\n')
     with pytest.raises(retake.ManifestError) as info:
