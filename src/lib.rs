@@ -37,6 +37,7 @@ pub mod noise;
 pub mod outdir;
 pub mod recipe;
 pub mod remap;
+pub mod report;
 pub mod room;
 pub mod run;
 pub mod seed;
