@@ -16,9 +16,9 @@ use crate::timemap::TimeMap;
 use crate::transcript::{Clip, Line};
 
 /// Pixels (SVG units) per second of audio, for source and take alike.
-pub const PX_PER_S: f64 = 90.0;
+pub const PX_PER_S: f64 = 150.0;
 /// Left margin for the frequency labels.
-const LEFT: f64 = 44.0;
+const LEFT: f64 = 58.0;
 const RIGHT: f64 = 12.0;
 const PIC_H: f64 = ROWS as f64;
 
@@ -413,7 +413,10 @@ fn map_strip(svg: &mut String, y: f64, source: &Clip, take: &Clip, map: &TimeMap
 /// Time masks and frequency bands of the take's mask steps, in take time; when a step that
 /// moves time ran after a mask, its spans are not in take time any more and are listed
 /// instead of drawn.
-fn masked(take: &Clip) -> (Vec<(f64, f64)>, Vec<(f64, f64)>, Option<String>) {
+/// Spans in seconds or bands in Hz: (from, to).
+type Spans = Vec<(f64, f64)>;
+
+fn masked(take: &Clip) -> (Spans, Spans, Option<String>) {
     let (mut spans, mut bands, mut note) = (Vec::new(), Vec::new(), None);
     let Some(origin) = &take.origin else {
         return (spans, bands, note);

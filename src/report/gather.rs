@@ -9,7 +9,6 @@ use serde_json::Value;
 
 use super::hist::Hist;
 use crate::seed::stable_hash;
-use crate::timemap::TimeMap;
 use crate::transcript::{Clip, parse_clip, validate};
 
 /// Most ids listed per reason or problem.
@@ -458,7 +457,7 @@ fn labels_in(agg: &mut Aggregates, clip: &Clip, origin: &crate::transcript::Orig
     } else {
         moved.join(" + ")
     };
-    let back: Option<TimeMap> = origin.time_map.inverse();
+    let knots = origin.time_map.knots();
     for line in clip.lines.iter().flatten() {
         agg.lines_timed += 1;
         for w in &line.words {
@@ -484,22 +483,40 @@ fn labels_in(agg: &mut Aggregates, clip: &Clip, origin: &crate::transcript::Orig
                     .add(&clip.id);
                 continue;
             }
-            let Some(back) = &back else {
+            let source_len = source_time(knots, w.end) - source_time(knots, w.start);
+            if source_len <= 0.0 {
                 agg.flagged_words
-                    .entry("no single source time (the time map has a flat piece)".into())
+                    .entry("no source length (the word lies where the time map is flat)".into())
                     .or_default()
                     .add(&clip.id);
-                continue;
-            };
-            let source_len = back.apply(w.end) - back.apply(w.start);
-            if source_len > 0.0 {
+            } else {
+                // Rounded to 1e-9 %: far below anything shown, and it makes a 1-ulp
+                // difference in how a reader computes the same change land in the same bin
+                // (a word left alone reads exactly 0, not ±1e-14).
                 let change = ((w.end - w.start) / source_len - 1.0) * 100.0;
+                let change = (change * 1e9).round() / 1e9;
                 agg.word_change
                     .entry(group.clone())
                     .or_default()
                     .add(change);
             }
         }
+    }
+}
+
+/// The source time a take time `y` came from: on the first rising piece of the map that
+/// reaches `y` (a flat piece, such as the last sample lost to rounding a rate, has no single
+/// source time, so it is passed over); before or past the map, its end.
+pub fn source_time(knots: &[(f64, f64)], y: f64) -> f64 {
+    for pair in knots.windows(2) {
+        let ((x0, y0), (x1, y1)) = (pair[0], pair[1]);
+        if y1 > y0 && y >= y0 && y <= y1 {
+            return x0 + (y - y0) / (y1 - y0) * (x1 - x0);
+        }
+    }
+    match knots.first() {
+        Some(&(x, y0)) if y < y0 => x,
+        _ => knots.last().map_or(0.0, |k| k.0),
     }
 }
 
@@ -543,6 +560,15 @@ mod tests {
         let kb: Vec<String> = b.into_sorted().into_iter().map(|x| x.0).collect();
         assert_eq!(ka.len(), 7);
         assert_eq!(ka, kb);
+    }
+
+    #[test]
+    fn source_times_pass_over_a_flat_end() {
+        let k = [(0.0, 0.0), (8.29, 9.21), (8.3, 9.21)];
+        assert!((source_time(&k, 9.21 / 2.0) - 4.145).abs() < 1e-12);
+        assert_eq!(source_time(&k, 9.21), 8.29);
+        assert_eq!(source_time(&k, 10.0), 8.3);
+        assert_eq!(source_time(&k, -1.0), 0.0);
     }
 
     #[test]

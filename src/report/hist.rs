@@ -56,6 +56,8 @@ impl Hist {
             self.non_finite += 1;
             return;
         }
+        // -0 and 0 are one value (adding 0 turns -0 into 0).
+        let v = v + 0.0;
         self.count += 1;
         self.sum += v;
         self.min = self.min.min(v);
@@ -170,13 +172,19 @@ mod tests {
     #[test]
     fn a_list_draw_is_counted_per_value() {
         let mut h = Hist::default();
-        for v in [0.9, 1.0, 1.1, 1.0, 0.9, 1.0] {
+        for v in [0.9, 1.0, 1.1, 1.0, 0.9, 1.0, 0.0, -0.0] {
             h.add(v);
         }
-        assert_eq!(h.distinct().unwrap(), vec![(0.9, 2), (1.0, 3), (1.1, 1)]);
+        assert_eq!(
+            h.distinct().unwrap(),
+            vec![(0.0, 2), (0.9, 2), (1.0, 3), (1.1, 1)]
+        );
         let (edges, counts) = h.bins();
-        assert_eq!(counts.iter().sum::<u64>(), 6);
-        assert_eq!(counts, slow(&[0.9, 1.0, 1.1, 1.0, 0.9, 1.0], &edges));
+        assert_eq!(counts.iter().sum::<u64>(), 8);
+        assert_eq!(
+            counts,
+            slow(&[0.9, 1.0, 1.1, 1.0, 0.9, 1.0, 0.0, 0.0], &edges)
+        );
     }
 
     #[test]

@@ -41,6 +41,9 @@ fn tile(s: &mut String, key: &str, value: &str, exact: &str, label: &str) {
 }
 
 fn ids(t: &Tally) -> String {
+    if t.count == 0 {
+        return "none".into();
+    }
     let mut s = t
         .first
         .iter()
@@ -51,6 +54,31 @@ fn ids(t: &Tally) -> String {
         s.push_str(" …");
     }
     s
+}
+
+/// A table of reasons: why, how many, the first ids. `attrs` go on the table element.
+fn reasons_table(
+    s: &mut String,
+    attrs: &str,
+    caption: &str,
+    noun: &str,
+    rows: &std::collections::BTreeMap<String, Tally>,
+) {
+    let _ = write!(
+        s,
+        r#"<table class="reasons"{attrs}><caption>{caption}</caption><thead><tr><th scope="col">why</th><th scope="col">{noun}</th><th scope="col">first</th></tr></thead><tbody>"#
+    );
+    for (why, t) in rows {
+        let _ = write!(
+            s,
+            r#"<tr><td>{}</td><td data-count="{}">{}</td><td>{}</td></tr>"#,
+            esc(why),
+            t.count,
+            t.count,
+            ids(t)
+        );
+    }
+    s.push_str("</tbody></table>");
 }
 
 fn pct(n: u64, of: u64) -> String {
@@ -254,17 +282,7 @@ fn steps(s: &mut String, p: &Page<'_>) {
             share * 100.0
         );
         if !st.notes.is_empty() {
-            s.push_str(r#"<table class="reasons"><caption>Due but left the take alone</caption><thead><tr><th scope="col">why</th><th scope="col">takes</th><th scope="col">first</th></tr></thead><tbody>"#);
-            for (note, t) in &st.notes {
-                let _ = write!(
-                    s,
-                    "<tr><td>{}</td><td>{}</td><td>{}</td></tr>",
-                    esc(note),
-                    t.count,
-                    ids(t)
-                );
-            }
-            s.push_str("</tbody></table>");
+            reasons_table(s, "", "Due but left the take alone", "takes", &st.notes);
         }
         s.push_str(r#"<div class="charts">"#);
         for pair in agg
@@ -307,7 +325,8 @@ fn steps(s: &mut String, p: &Page<'_>) {
             let outside = range.map(|(a, b)| (h.min < a) || (h.max > b));
             let _ = write!(
                 s,
-                r#"<figure class="chart-box">{}<figcaption>{} values, {} to {}, mean {}{}</figcaption></figure>"#,
+                r#"<figure class="chart-box" data-step="{i}" data-field="{}">{}<figcaption>{} values, {} to {}, mean {}{}</figcaption></figure>"#,
+                esc(key),
                 histogram(
                     &format!("hist-{}-{}", i + 1, key.replace(['.', ' '], "-")),
                     &title,
@@ -368,23 +387,14 @@ fn labels(s: &mut String, agg: &Aggregates) {
         agg.obscured_half.count
     );
     if !agg.invalid.is_empty() {
-        s.push_str(r#"<table class="reasons"><caption>Timing problems in the takes</caption><thead><tr><th scope="col">problem</th><th scope="col">takes</th><th scope="col">first</th></tr></thead><tbody>"#);
-        for (why, t) in &agg.invalid {
-            let _ = write!(
-                s,
-                "<tr><td>{}</td><td>{}</td><td>{}</td></tr>",
-                esc(why),
-                t.count,
-                ids(t)
-            );
-        }
-        s.push_str("</tbody></table>");
+        reasons_table(s, "", "Timing problems in the takes", "takes", &agg.invalid);
     }
     s.push_str(r#"<p class="lede">Word length in the take against the same word in the source (through the take's time map), by the steps that moved time in that take.</p><div class="charts">"#);
     for (group, h) in &agg.word_change {
         let _ = write!(
             s,
-            r#"<figure class="chart-box">{}<figcaption>{} words, change {} % to {} %</figcaption></figure>"#,
+            r#"<figure class="chart-box" data-field="word-change" data-group="{}">{}<figcaption>{} words, change {} % to {} %</figcaption></figure>"#,
+            esc(group),
             histogram(
                 &format!("change-{}", group.replace([' ', '+'], "")),
                 &format!("word length change % · {group}"),
@@ -399,7 +409,7 @@ fn labels(s: &mut String, agg: &Aggregates) {
     if agg.obscured.count > 0 {
         let _ = write!(
             s,
-            r#"<figure class="chart-box">{}<figcaption>{} words partly hidden by masks (of {}); more than a quarter: {}; more than half: {}</figcaption></figure>"#,
+            r#"<figure class="chart-box" data-field="obscured">{}<figcaption>{} words partly hidden by masks (of {}); more than a quarter: {}; more than half: {}</figcaption></figure>"#,
             histogram(
                 "obscured",
                 "obscured (fraction of the word hidden)",
@@ -416,17 +426,13 @@ fn labels(s: &mut String, agg: &Aggregates) {
     if agg.flagged_words.is_empty() {
         s.push_str(r#"<p class="ok" data-figure="flagged-words" data-value="0">No word was flagged: every word keeps a length and a source time.</p>"#);
     } else {
-        s.push_str(r#"<table class="reasons" data-figure="flagged-words"><caption>Words flagged</caption><thead><tr><th scope="col">why</th><th scope="col">words</th><th scope="col">first takes</th></tr></thead><tbody>"#);
-        for (why, t) in &agg.flagged_words {
-            let _ = write!(
-                s,
-                "<tr><td>{}</td><td>{}</td><td>{}</td></tr>",
-                esc(why),
-                t.count,
-                ids(t)
-            );
-        }
-        s.push_str("</tbody></table>");
+        reasons_table(
+            s,
+            r#" data-figure="flagged-words""#,
+            "Words flagged",
+            "words",
+            &agg.flagged_words,
+        );
     }
     s.push_str(r#"<p class="note">A label that could not stay valid makes its clip a reject (below), so no take carries one.</p></section>"#);
 }
@@ -445,24 +451,13 @@ fn grouped_table(s: &mut String, title: &str, key: &str, g: &Option<Grouped>) {
                 r#"<p class="ok" data-figure="{key}" data-value="0">{title}: none.</p>"#
             );
         }
-        Some(g) => {
-            let _ = write!(
-                s,
-                r#"<table class="reasons" data-figure="{key}" data-value="{}"><caption>{title}: {} by reason</caption><thead><tr><th scope="col">reason</th><th scope="col">count</th><th scope="col">first</th></tr></thead><tbody>"#,
-                g.total, g.total
-            );
-            for (why, t) in &g.by_reason {
-                let _ = write!(
-                    s,
-                    r#"<tr><td>{}</td><td data-count="{}">{}</td><td>{}</td></tr>"#,
-                    esc(why),
-                    t.count,
-                    t.count,
-                    ids(t)
-                );
-            }
-            s.push_str("</tbody></table>");
-        }
+        Some(g) => reasons_table(
+            s,
+            &format!(r#" data-figure="{key}" data-value="{}""#, g.total),
+            &format!("{title}: {} by reason", g.total),
+            "count",
+            &g.by_reason,
+        ),
     }
 }
 
