@@ -347,3 +347,19 @@ fn find_sources(
     }
     Ok(found)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn links_escape_what_a_url_would_misread() {
+        assert_eq!(url_path("takes/a-1.t0.wav"), "takes/a-1.t0.wav");
+        // A file name that holds `%` (an escaped clip id) must keep it as a byte.
+        assert_eq!(
+            url_path("takes/north%2Fdock%201.t2.wav"),
+            "takes/north%252Fdock%25201.t2.wav"
+        );
+        assert_eq!(url_path("a b#c?.wav"), "a%20b%23c%3F.wav");
+    }
+}

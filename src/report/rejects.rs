@@ -114,4 +114,20 @@ mod tests {
             past.0
         );
     }
+
+    #[test]
+    fn left_out_records_group_by_their_reason_and_source() {
+        let text = concat!(
+            r#"{"source":"long-1","line":2,"start":0.0,"end":31.0,"text":"a","reason":"too_long","detail":"31 s"}"#,
+            "\n",
+            r#"{"source":"long-2","line":3,"start":4.0,"end":4.2,"text":"b","reason":"too_short","detail":"0.2 s"}"#,
+            "\n",
+            r#"{"source":"long-3","line":4,"start":9.0,"end":40.0,"text":"c","reason":"too_long","detail":"31 s"}"#,
+            "\n"
+        );
+        let g = group(text.as_bytes(), "source", &["reason"]).unwrap();
+        assert_eq!(g.total, 3);
+        assert_eq!(g.by_reason["too_long"].first, vec!["long-1", "long-3"]);
+        assert_eq!(g.by_reason["too_short"].count, 1);
+    }
 }
