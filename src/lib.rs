@@ -39,6 +39,7 @@ pub mod noise;
 pub mod outdir;
 pub mod recipe;
 pub mod remap;
+pub mod report;
 pub mod room;
 pub mod run;
 pub mod seed;

@@ -7,6 +7,7 @@ mod export;
 mod import;
 mod plan;
 mod remap;
+mod report;
 mod run;
 mod slice;
 
@@ -117,7 +118,15 @@ enum Command {
         /// Overrides the recipe's `channels`.
         #[arg(long, value_parser = parse_channels)]
         channels: Option<ChannelPolicy>,
+        /// Also write the report page, OUT/report/index.html (see `retake report`).
+        #[arg(long)]
+        report: bool,
     },
+    /// Write a run's report: OUT/report/index.html, figures, spectrograms and players.
+    ///
+    /// Opens from the file system with no network. Every figure comes from one pass over
+    /// OUT/manifest.jsonl; the gallery is a seeded sample plus the takes named with --show.
+    Report(report::ReportArgs),
     /// Check a recipe and print its plan (each step, its values, its chance); writes nothing.
     Plan {
         /// The recipe (TOML).
@@ -184,7 +193,9 @@ pub fn main() -> ExitCode {
             out,
             threads,
             channels,
-        } => run::run(&recipe, &input, &out, threads, channels),
+            report,
+        } => run::run(&recipe, &input, &out, threads, channels, report),
+        Command::Report(args) => report::report(&args),
         Command::Check { manifest } => check::check(&manifest),
         Command::Bank {
             dir,

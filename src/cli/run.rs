@@ -16,6 +16,7 @@ pub fn run(
     out: &Path,
     threads: Option<usize>,
     channels: Option<ChannelPolicy>,
+    report: bool,
 ) -> ExitCode {
     let mut plan = match recipe::load(recipe_path) {
         Ok(p) => p,
@@ -71,6 +72,12 @@ pub fn run(
         }
         Ok(summary) => {
             print_summary(&summary, out);
+            if report {
+                let code = write_report(&summary, recipe_path, input, out);
+                if code != ExitCode::from(Exit::Done) {
+                    return code;
+                }
+            }
             if summary.rejected > 0 {
                 Exit::DoneWithRejects.into()
             } else {
@@ -127,4 +134,29 @@ fn print_summary(s: &Summary, out: &Path) {
             out.join(REJECTS_NAME).display()
         );
     }
+}
+
+/// `--report`: the page, with the facts only this run knows (its time, its recipe).
+fn write_report(s: &Summary, recipe_path: &Path, input: &Path, out: &Path) -> ExitCode {
+    let facts = retake::report::RunFacts {
+        version: env!("CARGO_PKG_VERSION").to_string(),
+        wall_seconds: s.wall_seconds,
+        seconds_made: s.seconds_out_made(),
+        clips_in: s.clips_in,
+        recipe_path: recipe_path.display().to_string(),
+        recipe_text: std::fs::read_to_string(recipe_path).unwrap_or_default(),
+        input: std::path::absolute(input)
+            .unwrap_or_else(|_| input.to_path_buf())
+            .display()
+            .to_string(),
+    };
+    let args = super::report::ReportArgs {
+        out: out.to_path_buf(),
+        recipe: None,
+        input: None,
+        sample: retake::report::DEFAULT_SAMPLE,
+        seed: None,
+        show: Vec::new(),
+    };
+    super::report::write(out, Some(facts), None, None, &args)
 }
