@@ -20,7 +20,7 @@ use std::time::Instant;
 use rayon::prelude::*;
 use serde::Serialize;
 
-use crate::audio::{self, STEM_FORMAT};
+use crate::audio::STEM_FORMAT;
 use crate::files::{self, AtomicFile, WriteError, file_stem, write_audio_atomically};
 use crate::outdir::SharedFolderLock;
 use crate::outdir::earlier::JOURNAL_NAME;
@@ -30,7 +30,7 @@ use crate::outdir::{
 use crate::parts::{PARTS_DIR, PartNames, PartRecord, earlier_manifest_name};
 use crate::recipe::Plan;
 use crate::shard::{Shard, Unit, assign};
-use crate::take::{at_plan_rate, make_take};
+use crate::take::{load_source, make_take, take_file};
 use crate::transcript::stream::ManifestStream;
 use crate::transcript::{Clip, Entry, Problem, read_manifest, validate, write_manifest};
 use serde_json::Value;
@@ -818,26 +818,19 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
         done.line = entry.line;
         return Ok(done);
     }
-    let source = audio::decode(&path, plan.channels)
-        .and_then(|a| audio::usable(&path, &audio::Scan::of(&a), Some(plan.rate)).map(|()| a))
-        .map_err(|e| reject("audio", e.to_string()))?;
-    if let Some((field, reason)) = validate(clip, Some(source.duration())).into_iter().next() {
-        return Err(reject(&field, reason));
-    }
-    let seconds_in = source.duration();
+    let source = load_source(plan, clip, &path).map_err(|e| reject(&e.field, e.reason))?;
+    let (seconds_in, source_rate, base) = (source.seconds, source.rate, source.base);
     // A clip whose header did not say its length is measured now, before any step runs.
     if let Some(why) = crate::memory::over_limit(plan, seconds_in, ctx.clip_memory_limit) {
         return Err(reject("audio", why));
     }
-    let source_rate = source.rate;
-    let base = at_plan_rate(source, plan);
 
     let mut written: Vec<PathBuf> = Vec::new();
     let mut takes = Vec::with_capacity(plan.takes as usize);
     let outcome = (0..plan.takes).try_for_each(|k| {
-        let rel = format!("{TAKES_DIR}/{stem}.t{k}.{}", plan.format.extension());
         let take = make_take(plan, clip, &base, k, source_rate, &stem)
             .map_err(|e| reject(&e.field, e.reason))?;
+        let rel = take_file(&stem, k, plan.format);
         let files = std::iter::once((&rel, &take.audio, plan.format))
             .chain(take.stems.iter().map(|(r, a)| (r, a, STEM_FORMAT)));
         for (rel, signal, format) in files {
@@ -845,12 +838,7 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
                 .map_err(|e| write_failure(e, |m| reject("", m)))?;
             written.push(dest);
         }
-        takes.push(Clip {
-            id: format!("{}.t{k}", clip.id),
-            audio: rel,
-            duration: Some(take.audio.duration()),
-            ..take.clip
-        });
+        takes.push(take.record(k, &stem, plan.format));
         Ok(())
     });
     let done = ClipResult {

@@ -4,7 +4,9 @@
 
 use serde_json::Value;
 
-use crate::audio::Audio;
+use std::path::Path;
+
+use crate::audio::{self, Audio, SampleFormat};
 use crate::dsp::resample::resample;
 use crate::recipe::Plan;
 use crate::run::TAKES_DIR;
@@ -25,21 +27,113 @@ pub struct Take {
     pub stems: Vec<(String, Audio)>,
 }
 
-/// Why a take could not be made: the manifest field at fault (empty when the whole clip
-/// is) and the reason, in the user's terms.
+/// Where take `k` of the clip whose file stem is `stem` is written inside an output folder,
+/// its extension from the output-format table.
+pub fn take_file(stem: &str, k: u32, format: SampleFormat) -> String {
+    format!("{TAKES_DIR}/{stem}.t{k}.{}", format.extension())
+}
+
+impl Take {
+    /// The take's manifest line as `retake run` writes it: id `<clip id>.t<k>`, audio at
+    /// [`take_file`], its duration, labels and origin.
+    pub fn record(&self, k: u32, stem: &str, format: SampleFormat) -> Clip {
+        Clip {
+            id: format!("{}.t{k}", self.clip.id),
+            audio: take_file(stem, k, format),
+            duration: Some(self.audio.duration()),
+            ..self.clip.clone()
+        }
+    }
+}
+
+/// What kind of problem stopped a clip: its labels, its audio, a step, or the finished take.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ClipErrorKind {
+    /// A label is invalid, or does not fit the audio.
+    Labels,
+    /// The audio cannot be decoded, or holds nothing a step can work on.
+    Audio,
+    /// A step failed or made a non-finite sample.
+    Step,
+    /// The finished take is unusable (non-finite, or its rewritten labels invalid).
+    Take,
+}
+
+/// Why no take (or no further take) of a clip can be made, in the user's terms: the one
+/// per-clip error of the library. The batch engine turns it into a line of `rejects.jsonl`,
+/// the Python package into a `ClipError` exception.
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
 #[error("{}{reason}", if field.is_empty() { String::new() } else { format!("{field}: ") })]
-pub struct TakeError {
-    /// The field at fault, such as `lines[0].end`, or a step (`step 2 (room)`), or empty.
+pub struct ClipError {
+    /// What kind of problem it is.
+    pub kind: ClipErrorKind,
+    /// The field at fault, such as `lines[0].end`, `audio`, or a step (`step 2 (room)`), or
+    /// empty when the whole clip is.
     pub field: String,
     /// What went wrong.
     pub reason: String,
 }
 
-fn fail(field: impl Into<String>, reason: String) -> TakeError {
-    TakeError {
+fn fail(kind: ClipErrorKind, field: impl Into<String>, reason: String) -> ClipError {
+    ClipError {
+        kind,
         field: field.into(),
         reason,
+    }
+}
+
+/// A clip's source as every take of it starts: decoded, checked, at the plan's rate.
+#[derive(Debug, Clone)]
+pub struct Source {
+    /// The source at the plan's rate (see [`at_plan_rate`]).
+    pub base: Audio,
+    /// The rate it was recorded at, which `origin` records.
+    pub rate: u32,
+    /// Its length in seconds before resampling.
+    pub seconds: f64,
+}
+
+/// Decode `path` as the plan says (its channel policy), refuse what no step can work on
+/// (empty, non-finite, see [`crate::audio::usable`]), check the clip's labels against the
+/// audio's length and bring it to the plan's rate. The batch engine and embedders both start
+/// every take here, so the same file gives the same takes.
+///
+/// # Errors
+/// Undecodable or unusable audio (field `audio`) or a label that does not fit it.
+pub fn load_source(plan: &Plan, clip: &Clip, path: &Path) -> Result<Source, ClipError> {
+    check_labels(clip, None)?;
+    let source = audio::decode(path, plan.channels)
+        .map_err(|e| fail(ClipErrorKind::Audio, "audio", e.to_string()))?;
+    source_of(plan, clip, source, path)
+}
+
+/// [`load_source`] for audio already in memory (an embedder's array): the same checks, with
+/// `name` standing for the file in messages.
+///
+/// # Errors
+/// As [`load_source`].
+pub fn source_of(
+    plan: &Plan,
+    clip: &Clip,
+    source: Audio,
+    name: &Path,
+) -> Result<Source, ClipError> {
+    audio::usable(name, &audio::Scan::of(&source), Some(plan.rate))
+        .map_err(|e| fail(ClipErrorKind::Audio, "audio", e.to_string()))?;
+    check_labels(clip, Some(source.duration()))?;
+    Ok(Source {
+        seconds: source.duration(),
+        rate: source.rate,
+        base: at_plan_rate(source, plan),
+    })
+}
+
+/// The clip's labels, valid and (given a length) inside the audio.
+fn check_labels(clip: &Clip, duration: Option<f64>) -> Result<(), ClipError> {
+    match transcript::validate(clip, duration).into_iter().next() {
+        Some((field, reason)) => Err(fail(ClipErrorKind::Labels, field, reason)),
+        None => Ok(()),
     }
 }
 
@@ -70,7 +164,7 @@ pub fn make_take(
     k: u32,
     source_rate: u32,
     stem: &str,
-) -> Result<Take, TakeError> {
+) -> Result<Take, ClipError> {
     let seed = take_seed(plan.seed, &clip.id, k);
     let mut audio = base.clone();
     let mut map = TimeMap::identity(base.duration());
@@ -107,8 +201,13 @@ pub fn make_take(
                 lines: &lines_now,
                 words: &words_now,
             };
-            let done = run_step(planned.step.as_ref(), audio, &take, &mut rng)
-                .map_err(|e| fail(format!("step {} ({})", i + 1, e.step), e.reason))?;
+            let done = run_step(planned.step.as_ref(), audio, &take, &mut rng).map_err(|e| {
+                fail(
+                    ClipErrorKind::Step,
+                    format!("step {} ({})", i + 1, e.step),
+                    e.reason,
+                )
+            })?;
             audio = done.audio;
             map = map.then(&done.map);
             let end = audio.duration();
@@ -142,6 +241,7 @@ pub fn make_take(
     }
     if let Some(i) = audio.samples.iter().position(|s| !s.is_finite()) {
         return Err(fail(
+            ClipErrorKind::Take,
             "",
             format!("take {k}: sample {i} is not finite after the steps"),
         ));
@@ -174,6 +274,7 @@ pub fn make_take(
         .next()
     {
         return Err(fail(
+            ClipErrorKind::Take,
             field,
             format!("take {k}: rewritten label is invalid: {reason}"),
         ));

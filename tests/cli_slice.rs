@@ -590,3 +590,81 @@ fn a_rerun_with_other_limits_leaves_no_stale_slices_and_nothing_else_is_touched(
     expected.sort();
     assert_eq!(on_disk, expected);
 }
+
+/// Slices carry their time map in `origin` like every take, so `remap` moves another
+/// annotation of the source (here a word TSV, a row per word) onto each slice: a row inside
+/// a slice lands at its source time minus the slice's start (the slice's own `slice.start`,
+/// a plain offset, computed here independently of the map), and the slice's own words,
+/// rewritten by the slicer, agree with the moved rows.
+#[test]
+fn remap_moves_source_annotations_onto_slices() {
+    let tmp = tempfile::tempdir().unwrap();
+    let s = session::build(tmp.path(), 60.0);
+    let out = tmp.path().join("out");
+    slice(&s.manifest, &out, &["--shortest", "2", "--longest", "12"]);
+    let labels = tmp.path().join("labels");
+    std::fs::create_dir_all(&labels).unwrap();
+    let rows: Vec<(f64, f64, String)> = s.words();
+    let tsv: String = rows
+        .iter()
+        .map(|(a, b, w)| format!("{a:.6}\t{b:.6}\t{w}\n"))
+        .collect();
+    std::fs::write(labels.join(format!("{}.tsv", s.clip.id)), tsv).unwrap();
+    let moved = tmp.path().join("moved");
+    let o = retake(&[
+        "remap",
+        out.join("manifest.jsonl").to_str().unwrap(),
+        labels.to_str().unwrap(),
+        "-o",
+        moved.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let slices = read_jsonl(&out.join("manifest.jsonl"));
+    assert!(slices.len() >= 5, "{} slices", slices.len());
+    let mut inside = 0;
+    for c in &slices {
+        let (start, duration) = (f(&c["slice"]["start"]), f(&c["duration"]));
+        assert_eq!(c["origin"]["source"], s.clip.id.as_str());
+        let id = c["id"].as_str().unwrap();
+        let text = std::fs::read_to_string(moved.join(format!("{id}.tsv"))).unwrap();
+        let got: Vec<(f64, f64, String)> = text
+            .lines()
+            .map(|l| {
+                let p: Vec<&str> = l.split('\t').collect();
+                (
+                    p[0].parse().unwrap(),
+                    p[1].parse().unwrap(),
+                    p[2].to_string(),
+                )
+            })
+            .collect();
+        assert_eq!(got.len(), rows.len(), "{id}: every row is kept");
+        let own = slice_words(c);
+        for ((a, b, w), (ga, gb, gw)) in rows.iter().zip(&got) {
+            assert_eq!(w, gw);
+            let (ea, eb) = (
+                (a - start).clamp(0.0, duration),
+                (b - start).clamp(0.0, duration),
+            );
+            assert!(
+                (ga - ea).abs() < 2e-6 && (gb - eb).abs() < 2e-6,
+                "{id}: {w} at {a}..{b} moved to {ga}..{gb}, expected {ea}..{eb}"
+            );
+            if *a >= start && *b <= start + duration {
+                inside += 1;
+                let mine = own
+                    .iter()
+                    .find(|(oa, _, ow)| ow == w && (oa - ga).abs() < 1e-3);
+                assert!(
+                    mine.is_some(),
+                    "{id}: the slice's own labels lack {w} at {ga}"
+                );
+            }
+        }
+    }
+    assert!(
+        inside >= rows.len() / 2,
+        "only {inside} of {} rows inside slices",
+        rows.len()
+    );
+}

@@ -181,6 +181,10 @@ fn fault(
             "{step}: map domain {a}..{b} range ..{y} for input {d} s, output {d_out} s"
         ));
     }
+    let knots = out.map.knots();
+    if knots.windows(2).any(|w| w[1].0 < w[0].0 || w[1].1 < w[0].1) {
+        return Some(format!("{step}: the time map is not monotone: {knots:?}"));
+    }
     for (_, s) in &out.stems {
         if s.samples.iter().any(|x| !x.is_finite()) {
             return Some(format!("{step}: a stem is not finite"));
@@ -245,6 +249,106 @@ fn every_step_survives_every_hostile_input() {
         "{} of {runs} runs failed:\n{}",
         faults.len(),
         faults.join("\n")
+    );
+}
+
+/// Speech-like input: a gliding tone with a little noise, `seconds` long at `rate`.
+fn signal(rate: u32, seconds: f64, seed: u64) -> Vec<f32> {
+    let tone = common::sine(220.0 + 40.0 * seed as f64, seconds, rate, 0.4);
+    let noise = common::noise(tone.len(), seed + 1);
+    tone.iter().zip(noise).map(|(t, n)| t + 0.02 * n).collect()
+}
+
+/// The conformance matrix: every configuration of every registered step, at three rates,
+/// two lengths and three seeds, keeps its time map's domain on the input and its range on
+/// the output, monotone, with finite output. A new step is covered by its row in
+/// [`configurations`] (the test above refuses a registry row without one).
+#[test]
+fn every_step_keeps_its_map_over_rates_lengths_and_seeds() {
+    let bank = common::demo().join("noise");
+    let dir = tempfile::tempdir().unwrap();
+    let configs = configurations(&bank);
+    let mut faults = Vec::new();
+    let mut runs = 0;
+    for rate in [8_000, 16_000, 44_100] {
+        for (name, body) in &configs {
+            let plan = common::one_step_at(dir.path(), rate, body);
+            for seconds in [0.2, 1.0] {
+                for seed in 0..3 {
+                    runs += 1;
+                    let x = signal(rate, seconds, seed);
+                    let keeps_tail = body.contains("tail = \"keep\"");
+                    if let Some(f) = fault(name, &x, rate, seed, &plan, keeps_tail) {
+                        faults.push(format!("{rate} Hz, {seconds} s, seed {seed}: {f}"));
+                    }
+                }
+            }
+        }
+    }
+    assert!(
+        faults.is_empty(),
+        "{} of {runs} runs failed:\n{}",
+        faults.len(),
+        faults.join("\n")
+    );
+}
+
+/// Every configuration of every step, run as a whole batch by the engine, writes the same
+/// bytes on one thread and on two.
+#[test]
+fn every_step_writes_the_same_bytes_on_one_and_two_threads() {
+    let bank = common::demo().join("noise");
+    let dir = tempfile::tempdir().unwrap();
+    let clips = dir.path().join("clips");
+    std::fs::create_dir_all(&clips).unwrap();
+    let mut manifest = String::new();
+    for (i, seconds) in [0.6, 1.3, 0.9].into_iter().enumerate() {
+        let name = format!("c{i}.wav");
+        common::write_wav_pcm16(
+            &clips.join(&name),
+            16_000,
+            &signal(16_000, seconds, i as u64),
+        );
+        manifest += &format!(
+            "{{\"id\":\"c{i}\",\"audio\":\"clips/{name}\",\"lines\":[{{\"start\":0.1,\"end\":0.5,\
+             \"text\":\"bay two\",\"words\":[{{\"start\":0.1,\"end\":0.3,\"text\":\"bay\"}},\
+             {{\"start\":0.3,\"end\":0.5,\"text\":\"two\"}}]}}]}}\n"
+        );
+    }
+    let input = dir.path().join("manifest.jsonl");
+    std::fs::write(&input, manifest).unwrap();
+    let mut differ = Vec::new();
+    for (c, (name, body)) in configurations(&bank).iter().enumerate() {
+        let path = dir.path().join(format!("r{c}.toml"));
+        let text = format!("seed = {c}\ntakes = 3\nrate = 16000\n[[step]]\n{body}\n");
+        std::fs::write(&path, &text).unwrap();
+        let plan = retake::recipe::load(&path).unwrap_or_else(|e| panic!("{e}"));
+        let outs: Vec<_> = [1, 2]
+            .into_iter()
+            .map(|threads| {
+                let out = dir.path().join(format!("out{c}-{threads}"));
+                let spec = retake::run::RunSpec {
+                    plan: &plan,
+                    recipe: Some(&path),
+                    input: &input,
+                    out: &out,
+                    threads: Some(threads),
+                    shard: None,
+                    clip_memory_limit: retake::memory::DEFAULT_LIMIT_BYTES,
+                };
+                let summary = retake::run::run(&spec, &|_| {}).unwrap();
+                assert_eq!(summary.clips_in, 3, "{name}");
+                common::files_under(&out)
+            })
+            .collect();
+        if outs[0] != outs[1] {
+            differ.push(format!("{name} [{}]", body.replace('\n', "; ")));
+        }
+    }
+    assert!(
+        differ.is_empty(),
+        "1 and 2 threads differ for:\n{}",
+        differ.join("\n")
     );
 }
 

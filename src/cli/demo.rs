@@ -55,8 +55,7 @@ pub fn demo(out: &Path, threads: Option<usize>) -> ExitCode {
         out,
         threads,
         None,
-        None,
-        retake::memory::DEFAULT_LIMIT_BYTES,
+        super::run::Extras::default(),
     )
 }
 

@@ -9,6 +9,7 @@ mod jobs;
 mod join;
 mod plan;
 mod remap;
+mod report;
 mod run;
 mod slice;
 
@@ -130,6 +131,9 @@ enum Command {
         #[arg(long, value_name = "MIB", default_value_t = retake::memory::DEFAULT_LIMIT_BYTES >> 20,
               value_parser = clap::value_parser!(u64).range(1..=(1 << 30)))]
         max_clip_memory: u64,
+        /// Also write the report page, OUT/report/index.html (see `retake report`).
+        #[arg(long)]
+        report: bool,
     },
     /// Join the shards of a sharded run into one manifest.jsonl and rejects.jsonl.
     ///
@@ -149,6 +153,11 @@ enum Command {
     /// Write ready job files for a sharded run: a Slurm array with the join after it, or a
     /// Kubernetes Indexed Job and a join Job; CPU and memory from the memory model.
     Jobs(jobs::JobsArgs),
+    /// Write a run's report: OUT/report/index.html, figures, spectrograms and players.
+    ///
+    /// Opens from the file system with no network. Every figure comes from one pass over
+    /// OUT/manifest.jsonl; the gallery is a seeded sample plus the takes named with --show.
+    Report(report::ReportArgs),
     /// Check a recipe and print its plan (each step, its values, its chance); writes nothing.
     Plan {
         /// The recipe (TOML).
@@ -217,17 +226,22 @@ pub fn main() -> ExitCode {
             channels,
             shard,
             max_clip_memory,
+            report,
         } => run::run(
             &recipe,
             &input,
             &out,
             threads,
             channels,
-            shard,
-            max_clip_memory << 20,
+            run::Extras {
+                shard,
+                clip_memory_limit: max_clip_memory << 20,
+                report,
+            },
         ),
         Command::Join { recipe, input, out } => join::join(&recipe, &input, &out),
         Command::Jobs(args) => jobs::jobs(args),
+        Command::Report(args) => report::report(&args),
         Command::Check { manifest } => check::check(&manifest),
         Command::Bank {
             dir,

@@ -11,15 +11,39 @@ use retake::recipe;
 use retake::run::{self, Event, REJECTS_NAME, RunSpec, Summary};
 use retake::shard::{self, ShardArg};
 
+/// What `run` does besides the whole run on one machine.
+pub struct Extras {
+    /// `--shard`: only this shard, into parts.
+    pub shard: Option<ShardArg>,
+    /// `--max-clip-memory`, bytes.
+    pub clip_memory_limit: u64,
+    /// `--report`: write the report page after the run.
+    pub report: bool,
+}
+
+impl Default for Extras {
+    fn default() -> Self {
+        Extras {
+            shard: None,
+            clip_memory_limit: retake::memory::DEFAULT_LIMIT_BYTES,
+            report: false,
+        }
+    }
+}
+
 pub fn run(
     recipe_path: &Path,
     input: &Path,
     out: &Path,
     threads: Option<usize>,
     channels: Option<ChannelPolicy>,
-    shard: Option<ShardArg>,
-    clip_memory_limit: u64,
+    extras: Extras,
 ) -> ExitCode {
+    let Extras {
+        shard,
+        clip_memory_limit,
+        report,
+    } = extras;
     let shard = match shard.map(|a| shard::resolve(a, |k| std::env::var(k).ok())) {
         None => None,
         Some(Ok(s)) => Some(s),
@@ -96,6 +120,14 @@ pub fn run(
                     input.display(),
                     out.display()
                 );
+                if report {
+                    println!("report  after the join: retake report {}", out.display());
+                }
+            } else if report {
+                let code = write_report(&summary, recipe_path, input, out);
+                if code != ExitCode::from(Exit::Done) {
+                    return code;
+                }
             }
             if summary.rejected > 0 {
                 Exit::DoneWithRejects.into()
@@ -153,4 +185,29 @@ fn print_summary(s: &Summary, manifest: &Path, rejects: &Path) {
             rejects.display()
         );
     }
+}
+
+/// `--report`: the page, with the facts only this run knows (its time, its recipe).
+fn write_report(s: &Summary, recipe_path: &Path, input: &Path, out: &Path) -> ExitCode {
+    let facts = retake::report::RunFacts {
+        version: env!("CARGO_PKG_VERSION").to_string(),
+        wall_seconds: s.wall_seconds,
+        seconds_made: s.seconds_out_made(),
+        clips_in: s.clips_in,
+        recipe_path: recipe_path.display().to_string(),
+        recipe_text: std::fs::read_to_string(recipe_path).unwrap_or_default(),
+        input: std::path::absolute(input)
+            .unwrap_or_else(|_| input.to_path_buf())
+            .display()
+            .to_string(),
+    };
+    let args = super::report::ReportArgs {
+        out: out.to_path_buf(),
+        recipe: None,
+        input: None,
+        sample: retake::report::DEFAULT_SAMPLE,
+        seed: None,
+        show: Vec::new(),
+    };
+    super::report::write(out, Some(facts), None, None, &args)
 }

@@ -1,9 +1,11 @@
 //! Loading a bank: find the files, decode and resample them in parallel, split off the
 //! held-out part.
 
+use std::cell::RefCell;
 use std::fs;
 use std::io::ErrorKind;
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 
 use rayon::prelude::*;
 
@@ -160,6 +162,47 @@ fn load_one(path: &Path, rate: u32) -> Result<Vec<f32>, String> {
         ));
     }
     Ok(samples)
+}
+
+/// Banks loaded while one recipe is parsed, so two layers naming the same bank (with the
+/// same held-out fraction) decode it once.
+#[derive(Debug, Default)]
+pub struct BankCache(RefCell<Vec<CachedBank>>);
+
+#[derive(Debug)]
+struct CachedBank {
+    root: PathBuf,
+    held_out_bits: u64,
+    rate: u32,
+    bank: Arc<NoiseBank>,
+}
+
+impl BankCache {
+    /// The bank under `root` at `rate` with `held_out` of its files set aside, decoded on
+    /// first use.
+    ///
+    /// # Errors
+    /// As [`load_bank`].
+    pub fn get(&self, root: &Path, rate: u32, held_out: f64) -> Result<Arc<NoiseBank>, BankError> {
+        let held_out_bits = held_out.to_bits();
+        let hit = self
+            .0
+            .borrow()
+            .iter()
+            .find(|c| c.root == root && c.held_out_bits == held_out_bits && c.rate == rate)
+            .map(|c| c.bank.clone());
+        if let Some(bank) = hit {
+            return Ok(bank);
+        }
+        let bank = Arc::new(load_bank(root, rate, held_out)?);
+        self.0.borrow_mut().push(CachedBank {
+            root: root.to_path_buf(),
+            held_out_bits,
+            rate,
+            bank: bank.clone(),
+        });
+        Ok(bank)
+    }
 }
 
 #[cfg(test)]

@@ -8,7 +8,7 @@ use std::path::PathBuf;
 mod bank;
 pub mod describe;
 
-pub use bank::load_bank;
+pub use bank::{BankCache, load_bank};
 
 /// One usable noise recording, at the bank's rate.
 #[derive(Debug, Clone, PartialEq)]

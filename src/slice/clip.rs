@@ -10,7 +10,9 @@ use crate::audio::Audio;
 use crate::files::file_stem;
 use crate::files::write_audio_atomically;
 use crate::run::{Failure, Reject, write_failure};
-use crate::transcript::{Clip, Entry, Manifest, validate};
+use crate::seed::take_seed;
+use crate::timemap::TimeMap;
+use crate::transcript::{Clip, Entry, Manifest, Origin, StepRecord, validate};
 
 /// What one source clip gave.
 #[derive(Debug, Default)]
@@ -88,7 +90,14 @@ pub(super) fn slice_clip(
     let mut window = Window::open(&path, spec.channels).map_err(audio_err)?;
     let result = slices.iter().enumerate().try_for_each(|(k, c)| {
         let rel = format!("{SLICES_DIR}/{stem}.c{k}.wav");
-        let record = slice_record(clip, units.as_ref(), c, k, &rel, rate);
+        let at = SliceAt {
+            k,
+            rel: &rel,
+            rate,
+            total,
+            seed: spec.seed,
+        };
+        let record = slice_record(clip, units.as_ref(), c, &at);
         if let Some((field, reason)) = validate(&record, record.duration).into_iter().next() {
             return Err(reject(
                 &field,
@@ -130,16 +139,23 @@ pub(super) fn slice_clip(
     Ok(outcome)
 }
 
-/// The manifest record of slice `k`: labels on the slice's timeline, the source's extra fields,
-/// and where in the source it was taken from.
-fn slice_record(
-    clip: &Clip,
-    units: Option<&Units>,
-    c: &PlannedSlice,
+/// Where slice `k` goes and what it is cut from.
+struct SliceAt<'a> {
     k: usize,
-    rel: &str,
+    rel: &'a str,
     rate: f64,
-) -> Clip {
+    /// Frames in the whole source.
+    total: u64,
+    /// The slicing run's seed.
+    seed: u64,
+}
+
+/// The manifest record of slice `k`: labels on the slice's timeline, the source's extra
+/// fields, where in the source it was taken from, and an `origin` with the time map from the
+/// source onto the slice, as every take has, so `remap` carries other annotations of the
+/// source onto slices too.
+fn slice_record(clip: &Clip, units: Option<&Units>, c: &PlannedSlice, at: &SliceAt<'_>) -> Clip {
+    let (k, rel, rate) = (at.k, at.rel, at.rate);
     let (start, end) = (c.start as f64 / rate, c.end as f64 / rate);
     let duration = (c.end - c.start) as f64 / rate;
     let lines = match (&clip.lines, units) {
@@ -162,11 +178,44 @@ fn slice_record(
         text: clip.text.clone(),
         lines,
         duration: Some(duration),
-        origin: None,
+        origin: Some(Origin {
+            source: clip.id.clone(),
+            take: k as u32,
+            seed: take_seed(at.seed, &clip.id, k as u32),
+            source_rate: rate as u32,
+            steps: vec![StepRecord {
+                step: "slice".into(),
+                ran: true,
+                drawn: [("start", start), ("end", end)]
+                    .into_iter()
+                    .map(|(name, v)| (name.to_string(), serde_json::Value::from(v)))
+                    .collect(),
+                measured: Default::default(),
+                note: None,
+                stems: Default::default(),
+            }],
+            time_map: slice_map(start, duration, at.total as f64 / rate),
+        }),
         extra,
     };
     record.derive_text();
     record
+}
+
+/// Source time onto the slice that starts at `start` and lasts `duration`: the slice's
+/// stretch moves to 0, time before it holds at 0 and time after it at the slice's end.
+/// The domain is the whole source, as for any take.
+fn slice_map(start: f64, duration: f64, source_end: f64) -> TimeMap {
+    let end = start + duration;
+    let mut knots = vec![(0.0, 0.0)];
+    if start > 0.0 {
+        knots.push((start, 0.0));
+    }
+    knots.push((end, duration));
+    if source_end > end {
+        knots.push((source_end, duration));
+    }
+    TimeMap::from_knots(knots).expect("a slice lies inside its source and is not empty")
 }
 
 /// A left-out stretch as reported, and its seconds of speech.

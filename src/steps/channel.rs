@@ -16,7 +16,7 @@ use crate::dsp::filter::{Cascade, band_pass, tilt};
 use crate::dsp::g711::{alaw_round_trip, ulaw_round_trip};
 use crate::dsp::level::db_to_amplitude;
 use crate::dsp::resample::resample;
-use crate::recipe::{Draw, Params, RecipeError};
+use crate::keys::{Draw, Params, RecipeError};
 use crate::seed::TakeRng;
 use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};
 use crate::timemap::TimeMap;

@@ -7,7 +7,7 @@ use serde_json::Value;
 use crate::audio::Audio;
 use crate::dsp::level::{amplitude_db, db_to_amplitude, peak, scale_under};
 use crate::dsp::loudness::integrated_loudness;
-use crate::recipe::{Draw, Params, RecipeError};
+use crate::keys::{Draw, Params, RecipeError};
 use crate::seed::TakeRng;
 use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};
 use crate::timemap::TimeMap;

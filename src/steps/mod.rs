@@ -10,7 +10,7 @@
 use serde_json::{Map, Value};
 
 use crate::audio::Audio;
-use crate::recipe::{Params, RecipeError};
+use crate::keys::{Params, RecipeError};
 use crate::seed::TakeRng;
 use crate::timemap::TimeMap;
 
@@ -91,7 +91,7 @@ pub struct PlanContext<'a> {
     /// The recipe's folder: relative paths in a recipe are relative to it.
     pub recipe_dir: &'a std::path::Path,
     /// Noise banks loaded so far by this recipe, so two steps naming one bank share it.
-    pub banks: &'a noise::BankCache,
+    pub banks: &'a crate::noise::BankCache,
 }
 
 /// One operation of a recipe.

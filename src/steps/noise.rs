@@ -7,8 +7,6 @@
 //! ratio is kept. Several `noise` steps make several layers; each measures its SNR against
 //! the take as it enters that step.
 
-use std::cell::RefCell;
-use std::path::PathBuf;
 use std::sync::Arc;
 
 use serde_json::Value;
@@ -17,8 +15,8 @@ use crate::audio::Audio;
 use crate::dsp::active_level::active_speech_level;
 use crate::dsp::level::peak;
 use crate::dsp::mix::{excerpt, power_over, spans_to_samples};
-use crate::noise::{BankError, NoiseBank, load_bank};
-use crate::recipe::{Draw, Params, RecipeError};
+use crate::keys::{Draw, Params, RecipeError};
+use crate::noise::NoiseBank;
 use crate::seed::TakeRng;
 use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};
 use crate::timemap::TimeMap;
@@ -32,47 +30,6 @@ pub const DEFAULT_CROSSFADE_MS: f64 = 50.0;
 const OFFSET_TRIES: usize = 8;
 /// The mix never passes this peak (full scale).
 const FULL_SCALE: f64 = 1.0;
-
-/// Banks loaded while one recipe is parsed, so two layers naming the same bank (with the
-/// same held-out fraction) decode it once.
-#[derive(Debug, Default)]
-pub struct BankCache(RefCell<Vec<CachedBank>>);
-
-#[derive(Debug)]
-struct CachedBank {
-    root: PathBuf,
-    held_out_bits: u64,
-    rate: u32,
-    bank: Arc<NoiseBank>,
-}
-
-impl BankCache {
-    fn get(
-        &self,
-        root: &std::path::Path,
-        rate: u32,
-        held_out: f64,
-    ) -> Result<Arc<NoiseBank>, BankError> {
-        let held_out_bits = held_out.to_bits();
-        let hit = self
-            .0
-            .borrow()
-            .iter()
-            .find(|c| c.root == root && c.held_out_bits == held_out_bits && c.rate == rate)
-            .map(|c| c.bank.clone());
-        if let Some(bank) = hit {
-            return Ok(bank);
-        }
-        let bank = Arc::new(load_bank(root, rate, held_out)?);
-        self.0.borrow_mut().push(CachedBank {
-            root: root.to_path_buf(),
-            held_out_bits,
-            rate,
-            bank: bank.clone(),
-        });
-        Ok(bank)
-    }
-}
 
 /// Which stretch of the take the speech power is measured over.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

@@ -9,7 +9,7 @@ use serde_json::Value;
 use crate::audio::Audio;
 use crate::dsp::resample::speed;
 use crate::dsp::wsola::{WsolaConfig, stretch_by};
-use crate::recipe::{Draw, Params, RecipeError};
+use crate::keys::{Draw, Params, RecipeError};
 use crate::seed::TakeRng;
 use crate::steps::stretch::{anchors_map, too_short};
 use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};

@@ -5,7 +5,7 @@ use serde_json::Value;
 
 use crate::audio::Audio;
 use crate::dsp::resample::resample;
-use crate::recipe::{Draw, Params, RecipeError};
+use crate::keys::{Draw, Params, RecipeError};
 use crate::seed::TakeRng;
 use crate::steps::{PlanContext, Step, StepError, StepOutput, TakeContext};
 use crate::timemap::TimeMap;

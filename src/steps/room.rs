@@ -18,8 +18,8 @@ use crate::audio::Audio;
 use crate::dsp::convolve::convolve;
 use crate::dsp::level::{peak, scale_under};
 use crate::dsp::rt60::rt60;
+use crate::keys::{Draw, Params, RecipeError};
 use crate::noise::load_bank;
-use crate::recipe::{Draw, Params, RecipeError};
 use crate::room::absorption::{alpha_for_rt60_eyring, alpha_for_rt60_sabine};
 use crate::room::{
     Placement, RoomCache, Shoebox, direct_delay_s, distance_m, impulse_response, place,

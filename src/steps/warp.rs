@@ -7,7 +7,7 @@ use serde_json::Value;
 
 use crate::audio::Audio;
 use crate::dsp::wsola::{WsolaConfig, stretch};
-use crate::recipe::{Draw, Params, RecipeError};
+use crate::keys::{Draw, Params, RecipeError};
 use crate::seed::TakeRng;
 use crate::steps::mask::preset;
 use crate::steps::stretch::anchors_map;
