@@ -90,6 +90,8 @@ fn demo_run(dir: &Path) -> PathBuf {
             input: &demo.join("manifest.jsonl"),
             out: &out,
             threads: None,
+            shard: None,
+            clip_memory_limit: retake::memory::DEFAULT_LIMIT_BYTES,
         },
         &|_| {},
     )

@@ -139,9 +139,70 @@ pub fn sync_dir(dir: &Path) -> std::io::Result<()> {
     std::fs::File::open(dir)?.sync_all()
 }
 
+/// A file being written under its temporary name ([`temp_path`]): filled as a stream, then
+/// [`AtomicFile::commit`] flushes it to disk, renames it into place and flushes the folder,
+/// so a crash or power cut leaves either the old file or the whole new one. Dropped without
+/// a commit, it removes its temporary file.
+#[derive(Debug)]
+pub struct AtomicFile {
+    path: PathBuf,
+    tmp: PathBuf,
+    writer: Option<std::io::BufWriter<std::fs::File>>,
+}
+
+impl AtomicFile {
+    /// Start writing `path` (nothing is at `path` until the commit).
+    ///
+    /// # Errors
+    /// Creating the temporary file.
+    pub fn create(path: &Path) -> std::io::Result<Self> {
+        let tmp = temp_path(path);
+        let file = std::fs::File::create(&tmp)?;
+        Ok(AtomicFile {
+            path: path.to_path_buf(),
+            tmp,
+            writer: Some(std::io::BufWriter::new(file)),
+        })
+    }
+
+    /// Where to write.
+    pub fn writer(&mut self) -> &mut std::io::BufWriter<std::fs::File> {
+        self.writer
+            .as_mut()
+            .expect("an AtomicFile has its writer until it is committed")
+    }
+
+    /// Flush to disk, rename into place, flush the folder.
+    ///
+    /// # Errors
+    /// Flushing, syncing or renaming; the temporary file is removed.
+    pub fn commit(mut self) -> std::io::Result<()> {
+        let result = (|| {
+            let mut w = self.writer.take().expect("committed once");
+            w.flush()?;
+            w.get_ref().sync_all()?;
+            drop(w);
+            std::fs::rename(&self.tmp, &self.path)
+        })();
+        if result.is_err() {
+            let _ = std::fs::remove_file(&self.tmp);
+        }
+        result?;
+        sync_dir(self.path.parent().unwrap_or(Path::new(".")))
+    }
+}
+
+impl Drop for AtomicFile {
+    fn drop(&mut self) {
+        if self.writer.take().is_some() {
+            let _ = std::fs::remove_file(&self.tmp);
+        }
+    }
+}
+
 /// Write a file under a temporary name ([`temp_path`]), flush it to disk, rename it into
 /// place and flush the folder, so a crash or power cut leaves either the old file or the
-/// whole new one.
+/// whole new one ([`AtomicFile`] for a file written as a stream).
 ///
 /// # Errors
 /// Creating, filling, flushing or renaming the file; the temporary file is removed.
@@ -149,21 +210,9 @@ pub fn write_atomically(
     path: &Path,
     fill: impl FnOnce(&mut std::io::BufWriter<std::fs::File>) -> std::io::Result<()>,
 ) -> std::io::Result<()> {
-    let tmp = temp_path(path);
-    let result = (|| {
-        let file = std::fs::File::create(&tmp)?;
-        let mut w = std::io::BufWriter::new(file);
-        fill(&mut w)?;
-        w.flush()?;
-        w.get_ref().sync_all()?;
-        drop(w);
-        std::fs::rename(&tmp, path)
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    result?;
-    sync_dir(path.parent().unwrap_or(Path::new(".")))
+    let mut file = AtomicFile::create(path)?;
+    fill(file.writer())?;
+    file.commit()
 }
 
 /// A file that could not be written, with the system's reason when there is one.
@@ -193,13 +242,13 @@ pub fn is_out_of_space(e: &std::io::Error) -> bool {
     )
 }
 
-/// Write `signal` to `out/rel` under a temporary name, flush it to disk and rename it into
-/// place. The folder is not flushed here: the caller calls [`sync_dir`] once for a batch of
+/// Write `signal` to `out/rel` in `format` (WAV or FLAC, as its row of the output-format
+/// table says) under a temporary name, flush it to disk and rename it into place. The folder is not flushed here: the caller calls [`sync_dir`] once for a batch of
 /// files, before anything that counts on them (a completion record, a manifest) is written.
 ///
 /// # Errors
 /// Encoding, writing, flushing or renaming; the temporary file is removed.
-pub fn write_wav_atomically(
+pub fn write_audio_atomically(
     out: &Path,
     rel: &str,
     signal: &Audio,
@@ -207,7 +256,7 @@ pub fn write_wav_atomically(
 ) -> Result<PathBuf, WriteError> {
     let dest = out.join(rel);
     let tmp = temp_path(&dest);
-    let result = audio::write_wav(&tmp, signal, format)
+    let result = audio::write_audio(&tmp, signal, format)
         .map_err(|e| match e {
             AudioError::Io { source, .. } => source,
             other => std::io::Error::other(other.to_string()),
@@ -224,15 +273,19 @@ pub fn write_wav_atomically(
     Ok(dest)
 }
 
-/// Frames of a WAV file that is whole: its RIFF length matches the file's length, so it was
-/// finished and not cut short since. `None` for a missing, unreadable, unfinished or
-/// truncated file.
-pub fn whole_wav_frames(path: &Path) -> Option<(u32, u64)> {
+/// Rate and frames of an audio file this tool wrote, when it is whole: a WAV whose RIFF
+/// length matches the file's length (so it was finished and not cut short since), or a
+/// FLAC file's STREAMINFO (a FLAC file is written whole, then renamed; its frames are not
+/// checked further). `None` for a missing, unreadable, unfinished or truncated file.
+pub fn whole_audio_frames(path: &Path) -> Option<(u32, u64)> {
     use std::io::Read;
     let mut file = std::fs::File::open(path).ok()?;
     let len = file.metadata().ok()?.len();
     let mut head = [0u8; 8];
     file.read_exact(&mut head).ok()?;
+    if &head[..4] == b"fLaC" {
+        return flac_frames(&head, &mut file);
+    }
     let riff = u32::from_le_bytes([head[4], head[5], head[6], head[7]]);
     if &head[..4] != b"RIFF" || u64::from(riff) + 8 != len {
         return None;
@@ -242,6 +295,22 @@ pub fn whole_wav_frames(path: &Path) -> Option<(u32, u64)> {
     let frames = u64::from(reader.duration());
     let data = frames * u64::from(spec.bits_per_sample / 8) * u64::from(spec.channels);
     (data <= len).then_some((spec.sample_rate, frames))
+}
+
+/// Rate and total samples from a FLAC file's STREAMINFO block (the first metadata block,
+/// 34 bytes: rate in 20 bits, channels and depth, then total samples in 36 bits).
+fn flac_frames(head: &[u8; 8], file: &mut std::fs::File) -> Option<(u32, u64)> {
+    use std::io::Read;
+    // Block header: type 0 (STREAMINFO) in the low 7 bits, length 34.
+    if head[4] & 0x7F != 0 || head[5..8] != [0, 0, 34] {
+        return None;
+    }
+    let mut info = [0u8; 34];
+    file.read_exact(&mut info).ok()?;
+    let packed = u64::from_be_bytes(info[10..18].try_into().ok()?);
+    let rate = (packed >> 44) as u32;
+    let frames = packed & ((1 << 36) - 1);
+    (rate > 0).then_some((rate, frames))
 }
 
 #[cfg(test)]

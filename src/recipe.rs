@@ -8,7 +8,7 @@
 //! takes = 4              # takes per clip (take 0 included)
 //! keep_source = true     # take 0 is the source, only resampled to `rate`
 //! rate = 16000           # output sample rate, Hz
-//! format = "pcm16"       # or "float32"
+//! format = "pcm16"       # or "pcm24", "float32", "flac16", "flac24"
 //! channels = "mix"       # or a channel number counted from 0
 //!
 //! [[step]]
@@ -188,14 +188,17 @@ pub fn parse(path: &Path, text: &str) -> Result<Plan, RecipeError> {
     };
     let format = match at("format") {
         None => SampleFormat::default(),
-        Some((line, v)) => match v.get_ref().as_str() {
-            Some("pcm16") => SampleFormat::Pcm16,
-            Some("float32") => SampleFormat::Float32,
-            _ => {
+        Some((line, v)) => match v.get_ref().as_str().and_then(SampleFormat::from_name) {
+            Some(f) => f,
+            None => {
+                let names: Vec<String> = SampleFormat::names()
+                    .iter()
+                    .map(|n| format!("\"{n}\""))
+                    .collect();
                 return Err(ctx.err(
                     Some(line),
                     "format",
-                    "format: expected \"pcm16\" or \"float32\"".into(),
+                    format!("format: expected one of {}", names.join(", ")),
                 ));
             }
         },

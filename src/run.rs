@@ -3,8 +3,14 @@
 //! Clips are processed in parallel (rayon); each take is fixed by its seed alone, so the
 //! output is byte-identical whatever the thread count. Audio is written under a temporary
 //! name and renamed; a clip that fails has its finished takes removed and goes to
-//! `rejects.jsonl` with the reason, and the run goes on. The manifest and rejects are
-//! written in input order at the end, also by rename.
+//! `rejects.jsonl` with the reason, and the run goes on. The manifest is read as a stream
+//! and clips are made a bounded window at a time; the manifest and rejects are written in
+//! input order as each window finishes, under temporary names renamed at the end, so
+//! memory does not grow with the number of clips.
+//!
+//! A shard run ([`RunSpec::shard`]) makes only its share of the clips ([`crate::shard`]) and
+//! writes its manifest and rejects as parts under `parts/` ([`crate::parts`]), beside the
+//! other shards in the same folder; [`crate::join`] puts the parts together.
 
 use std::collections::HashSet;
 use std::io::Write;
@@ -14,15 +20,19 @@ use std::time::Instant;
 use rayon::prelude::*;
 use serde::Serialize;
 
-use crate::audio::SampleFormat;
-use crate::files::{self, WriteError, file_stem, write_wav_atomically};
+use crate::audio::STEM_FORMAT;
+use crate::files::{self, AtomicFile, WriteError, file_stem, write_audio_atomically};
+use crate::outdir::SharedFolderLock;
 use crate::outdir::earlier::JOURNAL_NAME;
 use crate::outdir::{
     Earlier, FolderLock, LOCK_NAME, LockError, Overwrite, Targets, refuse_overwrite,
 };
+use crate::parts::{PARTS_DIR, PartNames, PartRecord, earlier_manifest_name};
 use crate::recipe::Plan;
+use crate::shard::{Shard, Unit, assign};
 use crate::take::{load_source, make_take, take_file};
-use crate::transcript::{Clip, Entry, Manifest, Problem, read_manifest, validate, write_manifest};
+use crate::transcript::stream::ManifestStream;
+use crate::transcript::{Clip, Entry, Problem, read_manifest, validate, write_manifest};
 use serde_json::Value;
 
 /// Name of the output manifest inside the output folder.
@@ -157,6 +167,12 @@ pub struct RunSpec<'a> {
     pub out: &'a Path,
     /// Worker threads; `None` for one per core.
     pub threads: Option<usize>,
+    /// Make only this shard of the clips, into parts (`None`: all of them, into
+    /// `manifest.jsonl` and `rejects.jsonl`).
+    pub shard: Option<Shard>,
+    /// Memory one worker may need for one clip, bytes, as [`crate::memory`] predicts it
+    /// before decoding; a clip over it is a reject pointing at `retake slice`.
+    pub clip_memory_limit: u64,
 }
 
 /// One line of `rejects.jsonl`.
@@ -200,55 +216,66 @@ impl From<Problem> for Reject {
 /// far are kept for the next run of the same command.
 pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summary, RunError> {
     let started = Instant::now();
-    let manifest = read_manifest(spec.input).map_err(|source| RunError::Manifest {
+    let manifest_err = |source| RunError::Manifest {
         path: spec.input.to_path_buf(),
         source,
-    })?;
+    };
+    refuse_not_a_manifest(spec.input).map_err(manifest_err)?;
     let plan_inputs = spec.plan.inputs();
     let targets = Targets::new(
         spec.out,
         &[MANIFEST_NAME, REJECTS_NAME, LOCK_NAME, JOURNAL_NAME],
-        &[TAKES_DIR, DONE_DIR],
+        &[TAKES_DIR, DONE_DIR, PARTS_DIR],
     );
-    let audio: Vec<(String, PathBuf)> = manifest
-        .entries
-        .iter()
-        .map(|e| {
-            let what = format!("audio of clip `{}` (line {})", e.clip.id, e.line);
-            (what, manifest.base().join(&e.clip.audio))
-        })
-        .collect();
-    let named = [("input manifest".to_string(), spec.input)]
-        .into_iter()
-        .chain(spec.recipe.map(|r| ("recipe".to_string(), r)))
-        .chain(
-            plan_inputs
-                .iter()
-                .map(|p| ("file the recipe reads".into(), p.as_path())),
-        )
-        .chain(audio.iter().map(|(w, p)| (w.clone(), p.as_path())));
-    refuse_overwrite(&targets, named)?;
-    let _lock = FolderLock::acquire(spec.out)?;
+    // First pass over the manifest, as a stream: the input's fingerprint, every audio file
+    // against the output folder, the lines' shards.
+    let survey = survey(spec, &targets, &plan_inputs)?;
+    let part = spec.shard.map(PartNames::of);
+    let _lock = match &part {
+        None => (Some(FolderLock::acquire(spec.out)?), None, None),
+        Some(names) => {
+            let shared = SharedFolderLock::acquire(spec.out)?;
+            let own = FolderLock::acquire_file(&spec.out.join(PARTS_DIR), &lock_name(names))?;
+            (None, Some(shared), Some(own))
+        }
+    };
 
     let takes_dir = spec.out.join(TAKES_DIR);
     let done_dir = spec.out.join(DONE_DIR);
     for dir in [&takes_dir, &done_dir] {
         std::fs::create_dir_all(dir).map_err(RunError::output(dir))?;
     }
-    for dir in [spec.out, &takes_dir, &done_dir] {
-        files::remove_stale_temp_files(dir).map_err(RunError::output(dir))?;
+    // Other shards may be writing into takes/ and .done/ now: their temporary files are
+    // left for the join, which holds the folder alone.
+    if part.is_none() {
+        for dir in [spec.out, &takes_dir, &done_dir] {
+            files::remove_stale_temp_files(dir).map_err(RunError::output(dir))?;
+        }
+        // A whole run remakes takes that shards' parts may list: those parts can no longer
+        // be joined (their records go; the join then calls those shards unfinished).
+        retire_part_records(spec.out).map_err(RunError::output(spec.out))?;
     }
-    let mut earlier = Earlier::begin(
-        spec.out,
-        &[TAKES_DIR, DONE_DIR],
-        MANIFEST_NAME,
-        &[REJECTS_NAME],
-        // Only take records (with an `origin`) name files a run wrote.
-        |c| match c.origin {
-            Some(_) => take_files(c).map(str::to_string).collect(),
-            None => Vec::new(),
-        },
-    )
+    let mut earlier = match &part {
+        None => Earlier::begin(
+            spec.out,
+            &[TAKES_DIR, DONE_DIR],
+            MANIFEST_NAME,
+            &[REJECTS_NAME],
+            earlier_files,
+        ),
+        Some(names) => set_joined_aside(spec.out)
+            .and_then(|()| remove_if_there(&spec.out.join(names.record())))
+            .and_then(|()| {
+                Earlier::begin_journal(
+                    spec.out,
+                    &names.journal(),
+                    &[TAKES_DIR, DONE_DIR],
+                    &names.manifest(),
+                    &[&names.rejects()],
+                    earlier_files,
+                )
+            }),
+    }
     .map_err(RunError::output(spec.out))?;
     let threads = spec.threads.unwrap_or(0);
     let pool = rayon::ThreadPoolBuilder::new()
@@ -259,91 +286,256 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
             reason: e.to_string(),
         })?;
     on_event(Event::Started {
-        clips: manifest.entries.len(),
+        clips: survey.clips,
     });
+    let (manifest_name, rejects_name) = match &part {
+        None => (MANIFEST_NAME.to_string(), REJECTS_NAME.to_string()),
+        Some(names) => (names.manifest(), names.rejects()),
+    };
+    let manifest_path = spec.out.join(manifest_name);
+    let rejects_path = spec.out.join(rejects_name);
+    let mut takes_out =
+        AtomicFile::create(&manifest_path).map_err(RunError::output(&manifest_path))?;
+    let mut rejects_out =
+        AtomicFile::create(&rejects_path).map_err(RunError::output(&rejects_path))?;
+    let mut stream = ManifestStream::open(spec.input).map_err(manifest_err)?;
+    let base = stream.base().to_path_buf();
     let ctx = ClipContext {
         plan: spec.plan,
-        manifest: &manifest,
+        base: &base,
         out: spec.out,
         plan_key: plan_key(spec.plan, &plan_inputs),
+        clip_memory_limit: spec.clip_memory_limit,
     };
-    let results: Vec<Result<ClipResult, Reject>> = pool.install(|| {
-        manifest
-            .entries
-            .par_iter()
-            .map(|entry| {
-                let r = match process_clip(&ctx, entry) {
-                    Ok(done) => Ok(Ok(done)),
-                    Err(Failure::Reject(r)) => Ok(Err(r)),
-                    Err(Failure::Stop(e)) => Err(e),
-                };
-                if let Ok(r) = &r {
-                    on_event(Event::ClipDone { ok: r.is_ok() });
-                }
-                r
-            })
-            .collect::<Result<_, RunError>>()
-    })?;
 
-    let mut summary = Summary {
-        clips_in: manifest.entries.len() + manifest.problems.len(),
-        ..Summary::default()
-    };
-    let mut takes = Vec::new();
-    let mut records = Vec::new();
-    let mut rejects: Vec<Reject> = manifest
-        .problems
-        .iter()
-        .cloned()
-        .map(Reject::from)
-        .collect();
-    for result in results {
-        match result {
-            Ok(done) => {
-                let seconds: f64 = done.takes.iter().filter_map(|c| c.duration).sum();
-                summary.clips_done += 1;
-                summary.seconds_in += done.seconds_in;
-                summary.takes += done.takes.len();
-                summary.seconds_out += seconds;
-                if done.resumed {
-                    summary.clips_resumed += 1;
-                    summary.takes_kept += done.takes.len();
-                    summary.seconds_in_kept += done.seconds_in;
-                    summary.seconds_out_kept += seconds;
-                }
-                records.push(done.record);
-                takes.extend(done.takes);
+    let mut summary = Summary::default();
+    // Per clip done, for a shard's record: (line, takes, completion record).
+    let mut order = Vec::new();
+    let mut reject_lines = Vec::new();
+    // Hashes of the completion records this run made or kept (the rest are earlier files).
+    let mut records_done: HashSet<u64> = HashSet::new();
+    // The bounded reorder window: clips are read, made in parallel and written in input
+    // order a window at a time, so memory holds one window, whatever the clip count.
+    let window = WINDOW_PER_THREAD * pool.current_num_threads().max(1);
+    loop {
+        let mut entries = Vec::with_capacity(window);
+        let mut rejects: Vec<Reject> = Vec::new();
+        while entries.len() + rejects.len() < window {
+            let Some(item) = stream.next_item().map_err(manifest_err)? else {
+                break;
+            };
+            let line = match &item {
+                Ok(e) => e.line,
+                Err(p) => p.line,
+            };
+            if !survey.mine(line) {
+                continue;
             }
-            Err(reject) => rejects.push(reject),
+            summary.clips_in += 1;
+            match item {
+                Ok(e) => entries.push(e),
+                Err(p) => rejects.push(Reject::from(p)),
+            }
         }
-    }
-    rejects.sort_by_key(|r| r.line);
-    summary.rejected = rejects.len();
-    files::sync_dir(&done_dir).map_err(RunError::output(&done_dir))?;
-    write_atomically(&spec.out.join(MANIFEST_NAME), |w| write_manifest(w, &takes))?;
-    write_atomically(&spec.out.join(REJECTS_NAME), |w| {
+        if entries.is_empty() && rejects.is_empty() {
+            break;
+        }
+        let results: Vec<Result<ClipResult, Reject>> = pool.install(|| {
+            entries
+                .par_iter()
+                .map(|entry| {
+                    let r = match process_clip(&ctx, entry) {
+                        Ok(done) => Ok(Ok(done)),
+                        Err(Failure::Reject(r)) => Ok(Err(r)),
+                        Err(Failure::Stop(e)) => Err(e),
+                    };
+                    if let Ok(r) = &r {
+                        on_event(Event::ClipDone { ok: r.is_ok() });
+                    }
+                    r
+                })
+                .collect::<Result<_, RunError>>()
+        })?;
+        for result in results {
+            match result {
+                Ok(done) => {
+                    let seconds: f64 = done.takes.iter().filter_map(|c| c.duration).sum();
+                    summary.clips_done += 1;
+                    summary.seconds_in += done.seconds_in;
+                    summary.takes += done.takes.len();
+                    summary.seconds_out += seconds;
+                    if done.resumed {
+                        summary.clips_resumed += 1;
+                        summary.takes_kept += done.takes.len();
+                        summary.seconds_in_kept += done.seconds_in;
+                        summary.seconds_out_kept += seconds;
+                    }
+                    for f in done.takes.iter().flat_map(take_files) {
+                        earlier.keep(f);
+                    }
+                    earlier.keep(&done.record);
+                    records_done.insert(crate::seed::stable_hash(&[done.record.as_bytes()]));
+                    write_manifest(takes_out.writer(), &done.takes)
+                        .map_err(RunError::output(&manifest_path))?;
+                    if part.is_some() {
+                        order.push((done.line, done.takes.len(), done.record));
+                    }
+                }
+                Err(reject) => rejects.push(reject),
+            }
+        }
+        rejects.sort_by_key(|r| r.line);
+        summary.rejected += rejects.len();
         for r in &rejects {
-            serde_json::to_writer(&mut *w, r)?;
-            w.write_all(b"\n")?;
-        }
-        Ok(())
-    })?;
-    // Records of clips not done now (dropped from the input, rejected, made by another
-    // plan) and the takes they list are earlier files too.
-    for (rel, record) in earlier_records(&done_dir) {
-        earlier.add(rel);
-        for f in record.takes.iter().flat_map(take_files) {
-            earlier.add(f.to_string());
+            let w = rejects_out.writer();
+            serde_json::to_writer(&mut *w, r)
+                .map_err(std::io::Error::from)
+                .and_then(|()| w.write_all(b"\n"))
+                .map_err(RunError::output(&rejects_path))?;
+            if part.is_some() {
+                reject_lines.push(r.line);
+            }
         }
     }
-    let keep: HashSet<&str> = takes
-        .iter()
-        .flat_map(take_files)
-        .chain(records.iter().map(String::as_str))
-        .collect();
-    summary.removed = earlier.finish(&keep).map_err(RunError::output(spec.out))?;
+    files::sync_dir(&done_dir).map_err(RunError::output(&done_dir))?;
+    takes_out
+        .commit()
+        .map_err(RunError::output(&manifest_path))?;
+    rejects_out
+        .commit()
+        .map_err(RunError::output(&rejects_path))?;
+    if let (Some(names), Some(shard)) = (&part, spec.shard) {
+        // Written last: its presence says the shard finished.
+        let record = PartRecord {
+            shard: shard.index,
+            shards: shard.count,
+            recipe: format!("{:016x}", ctx.plan_key),
+            input: format!("{:016x}", survey.input_key),
+            clips: order,
+            rejects: reject_lines,
+        };
+        write_atomically(&spec.out.join(names.record()), |w| {
+            serde_json::to_writer(&mut *w, &record)?;
+            w.write_all(b"\n")
+        })?;
+    } else {
+        // Records of clips not done now (dropped from the input, rejected, made by another
+        // plan) and the takes they list are earlier files too. A shard leaves them to the
+        // join: they may be another shard's.
+        add_unlisted_records(&mut earlier, &done_dir, &records_done);
+    }
+    summary.removed = earlier
+        .finish(&HashSet::new())
+        .map_err(RunError::output(spec.out))?;
     summary.wall_seconds = started.elapsed().as_secs_f64();
     Ok(summary)
+}
+
+/// Clips in the reorder window per worker thread: enough that a slow clip rarely leaves a
+/// worker idle at the end of a window, few enough that a window's records stay small.
+const WINDOW_PER_THREAD: usize = 64;
+
+/// What the first pass over the manifest found.
+struct Survey {
+    /// Fingerprint of the manifest's bytes.
+    input_key: u64,
+    /// Clips this run makes (a shard's share, or all; bad lines not counted).
+    clips: usize,
+    /// The shard of every line and this run's shard, for a shard run.
+    owner: Option<(Vec<u32>, usize)>,
+}
+
+impl Survey {
+    /// Whether line `line` (from 1) is this run's.
+    fn mine(&self, line: usize) -> bool {
+        match &self.owner {
+            None => true,
+            Some((owner, index)) => {
+                line.checked_sub(1)
+                    .and_then(|i| owner.get(i))
+                    .map(|&o| o as usize)
+                    == Some(*index)
+            }
+        }
+    }
+}
+
+/// The first pass: the input's fingerprint, every clip's audio (and the recipe and the
+/// files it reads) refused when the output would overwrite it, and each line's shard.
+fn survey(
+    spec: &RunSpec<'_>,
+    targets: &Targets,
+    plan_inputs: &[PathBuf],
+) -> Result<Survey, RunError> {
+    let manifest_err = |source| RunError::Manifest {
+        path: spec.input.to_path_buf(),
+        source,
+    };
+    let input_key = input_key(spec.input).map_err(manifest_err)?;
+    let named = [("input manifest".to_string(), spec.input.to_path_buf())]
+        .into_iter()
+        .chain(spec.recipe.map(|r| ("recipe".to_string(), r.to_path_buf())))
+        .chain(
+            plan_inputs
+                .iter()
+                .map(|p| ("file the recipe reads".into(), p.clone())),
+        );
+    refuse_overwrite(targets, named)?;
+    let mut stream = ManifestStream::open(spec.input).map_err(manifest_err)?;
+    let base = stream.base().to_path_buf();
+    // Only a shard run keeps a unit per line (to balance the shards).
+    let mut units = Vec::new();
+    let mut clips = 0;
+    let keep_units = spec.shard.is_some();
+    while let Some(item) = stream.next_item().map_err(manifest_err)? {
+        match item {
+            Err(_) if keep_units => units.push(Unit::Bad),
+            Err(_) => {}
+            Ok(entry) => {
+                clips += 1;
+                if keep_units {
+                    units.push(Unit::Clip(entry.clip.duration));
+                }
+                let what = format!("audio of clip `{}` (line {})", entry.clip.id, entry.line);
+                refuse_overwrite(targets, [(what, base.join(&entry.clip.audio))])?;
+            }
+        }
+    }
+    let is_clip = |u: &Unit| matches!(u, Unit::Clip(_));
+    let (clips, owner) = match spec.shard {
+        None => (clips, None),
+        Some(shard) => {
+            let owner: Vec<u32> = assign(&units, shard.count)
+                .into_iter()
+                .map(|s| s as u32)
+                .collect();
+            let mine = owner
+                .iter()
+                .zip(&units)
+                .filter(|(o, u)| **o as usize == shard.index && is_clip(u))
+                .count();
+            (mine, Some((owner, shard.index)))
+        }
+    };
+    Ok(Survey {
+        input_key,
+        clips,
+        owner,
+    })
+}
+
+/// A file none of whose first lines is a clip is checked whole ([`read_manifest`]), so a
+/// recipe or a JSON document given as the manifest is refused as such, not line by line.
+fn refuse_not_a_manifest(input: &Path) -> std::io::Result<()> {
+    let mut stream = ManifestStream::open(input)?;
+    for _ in 0..64 {
+        match stream.next_item()? {
+            None => break,
+            Some(Ok(_)) => return Ok(()),
+            Some(Err(_)) => {}
+        }
+    }
+    read_manifest(input).map(|_| ())
 }
 
 /// Why a clip did not finish: a reject (the run goes on) or a failure of the output that
@@ -371,17 +563,114 @@ pub(crate) fn write_failure<R>(
     }
 }
 
+/// The fingerprint of the input manifest's bytes, which every shard of one run shares
+/// (the first 64 bits of their SHA-256, read as a stream).
+pub(crate) fn input_key(input: &Path) -> std::io::Result<u64> {
+    use sha2::Digest;
+    use std::io::Read;
+    let mut file = crate::input_file::open(input)?;
+    let mut hash = sha2::Sha256::new();
+    let mut buf = vec![0u8; 1 << 16];
+    loop {
+        let n = file.read(&mut buf)?;
+        if n == 0 {
+            break;
+        }
+        hash.update(&buf[..n]);
+    }
+    let digest = hash.finalize();
+    let mut first = [0u8; 8];
+    first.copy_from_slice(&digest[..8]);
+    Ok(u64::from_le_bytes(first))
+}
+
+/// The lock file's name inside `parts/`.
+fn lock_name(names: &PartNames) -> String {
+    names
+        .lock()
+        .trim_start_matches(&format!("{PARTS_DIR}/"))
+        .to_string()
+}
+
+/// The files a manifest record names that a run wrote: only take records (with an
+/// `origin`) name any.
+pub(crate) fn earlier_files(c: &Clip) -> Vec<String> {
+    match c.origin {
+        Some(_) => take_files(c).map(str::to_string).collect(),
+        None => Vec::new(),
+    }
+}
+
+/// Completion records in `.done/` that this run did not make or keep (`done` holds the
+/// hashes of those it did) and the takes they list, as earlier files: removed at the end.
+pub(crate) fn add_unlisted_records(earlier: &mut Earlier, done_dir: &Path, done: &HashSet<u64>) {
+    for (rel, record) in earlier_records(done_dir, done) {
+        earlier.add(rel);
+        for f in record.takes.iter().flat_map(take_files) {
+            earlier.add(f.to_string());
+        }
+    }
+}
+
+/// A shard starting in a folder with a joined manifest: move it to `parts/` under a name
+/// from its content ([`earlier_manifest_name`]) and remove the joined rejects, so no
+/// manifest lists audio being remade. Shards starting together all write the same file.
+fn set_joined_aside(out: &Path) -> std::io::Result<()> {
+    let joined = out.join(MANIFEST_NAME);
+    match std::fs::read(&joined) {
+        Ok(content) => {
+            let aside = out.join(earlier_manifest_name(&content));
+            std::fs::create_dir_all(out.join(PARTS_DIR))?;
+            files::write_atomically(&aside, |w| w.write_all(&content))?;
+            remove_if_there(&joined)?;
+        }
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => {}
+        Err(e) => return Err(e),
+    }
+    remove_if_there(&out.join(REJECTS_NAME))?;
+    files::sync_dir(out)
+}
+
+/// Remove the shards' records (`parts/<k>-of-<n>.json`), nothing else.
+fn retire_part_records(out: &Path) -> std::io::Result<()> {
+    let Ok(entries) = std::fs::read_dir(out.join(PARTS_DIR)) else {
+        return Ok(());
+    };
+    for e in entries.filter_map(Result::ok) {
+        let is_record = e
+            .file_name()
+            .to_str()
+            .and_then(crate::parts::parse_part_name)
+            .is_some_and(|(_, _, tail)| tail == ".json");
+        if is_record {
+            remove_if_there(&e.path())?;
+        }
+    }
+    Ok(())
+}
+
+/// Remove a file; one already gone is fine.
+pub(crate) fn remove_if_there(path: &Path) -> std::io::Result<()> {
+    match std::fs::remove_file(path) {
+        Err(e) if e.kind() != std::io::ErrorKind::NotFound => Err(e),
+        _ => Ok(()),
+    }
+}
+
 /// What every clip of a run shares.
 struct ClipContext<'a> {
     plan: &'a Plan,
-    manifest: &'a Manifest,
+    /// The folder the manifest's audio paths are relative to.
+    base: &'a Path,
     out: &'a Path,
     /// [`plan_key`] of the run.
     plan_key: u64,
+    /// [`RunSpec::clip_memory_limit`].
+    clip_memory_limit: u64,
 }
 
 /// The files of a take record, relative to the output folder: its audio and its stems.
-fn take_files(take: &Clip) -> impl Iterator<Item = &str> {
+pub(crate) fn take_files(take: &Clip) -> impl Iterator<Item = &str> {
     let stems = take
         .origin
         .iter()
@@ -391,29 +680,35 @@ fn take_files(take: &Clip) -> impl Iterator<Item = &str> {
     std::iter::once(take.audio.as_str()).chain(stems)
 }
 
-/// Completion records in `.done/` (relative path, content); files there that do not read
-/// as one are not ours and are left alone.
-fn earlier_records(done_dir: &Path) -> Vec<(String, ClipResult)> {
-    let Ok(entries) = std::fs::read_dir(done_dir) else {
-        return Vec::new();
-    };
-    entries
+/// Completion records in `.done/` (relative path, content) but those whose path's hash is
+/// in `skip`, read one at a time; files there that do not read as one are not ours and
+/// are left alone.
+fn earlier_records<'a>(
+    done_dir: &Path,
+    skip: &'a HashSet<u64>,
+) -> impl Iterator<Item = (String, ClipResult)> + 'a {
+    std::fs::read_dir(done_dir)
+        .into_iter()
+        .flatten()
         .filter_map(Result::ok)
-        .filter_map(|e| {
+        .filter_map(move |e| {
             let name = e.file_name().into_string().ok()?;
             if !name.ends_with(".json") {
                 return None;
             }
+            let rel = format!("{DONE_DIR}/{name}");
+            if skip.contains(&crate::seed::stable_hash(&[rel.as_bytes()])) {
+                return None;
+            }
             let text = std::fs::read_to_string(e.path()).ok()?;
             let record: ClipResult = serde_json::from_str(&text).ok()?;
-            Some((format!("{DONE_DIR}/{name}"), record))
+            Some((rel, record))
         })
-        .collect()
 }
 
 /// The plan's fingerprint with the size and modification time of every file its steps
 /// read: a noise file or response changed, added or removed makes every record stale.
-fn plan_key(plan: &Plan, inputs: &[PathBuf]) -> u64 {
+pub(crate) fn plan_key(plan: &Plan, inputs: &[PathBuf]) -> u64 {
     let stamps: Vec<String> = inputs
         .iter()
         .map(|p| format!("{}|{}", p.display(), file_stamp(p)))
@@ -441,16 +736,19 @@ fn file_stamp(path: &Path) -> String {
 /// A finished clip: its takes as manifest records. Also the content of its completion
 /// record in [`DONE_DIR`].
 #[derive(Debug, Serialize, serde::Deserialize)]
-struct ClipResult {
+pub(crate) struct ClipResult {
     /// [`clip_fingerprint`] of the work this result is for.
     fingerprint: String,
     seconds_in: f64,
-    takes: Vec<Clip>,
+    pub(crate) takes: Vec<Clip>,
     #[serde(skip)]
     resumed: bool,
     /// The record's path relative to the output folder.
     #[serde(skip)]
     record: String,
+    /// The clip's line in the input manifest.
+    #[serde(skip)]
+    line: usize,
 }
 
 /// What decides a clip's takes: the plan and the files it reads ([`plan_key`]), the clip's
@@ -477,11 +775,11 @@ fn finished_earlier(record: &Path, fingerprint: &str, out: &Path, rate: u32) -> 
     }
     for take in &done.takes {
         let frames = (take.duration? * f64::from(rate)).round() as u64;
-        if files::whole_wav_frames(&out.join(&take.audio)) != Some((rate, frames)) {
+        if files::whole_audio_frames(&out.join(&take.audio)) != Some((rate, frames)) {
             return None;
         }
         for stem in take_files(take).skip(1) {
-            if files::whole_wav_frames(&out.join(stem)).is_none_or(|(r, _)| r != rate) {
+            if files::whole_audio_frames(&out.join(stem)).is_none_or(|(r, _)| r != rate) {
                 return None;
             }
         }
@@ -491,7 +789,7 @@ fn finished_earlier(record: &Path, fingerprint: &str, out: &Path, rate: u32) -> 
 }
 
 fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Failure> {
-    let (plan, manifest, out) = (ctx.plan, ctx.manifest, ctx.out);
+    let (plan, out) = (ctx.plan, ctx.out);
     let clip = &entry.clip;
     let reject = |field: &str, reason: String| {
         Failure::Reject(Reject {
@@ -504,36 +802,43 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
     if let Some((field, reason)) = validate(clip, None).into_iter().next() {
         return Err(reject(&field, reason));
     }
-    let path = manifest.base().join(&clip.audio);
+    let path = ctx.base.join(&clip.audio);
+    // Before anything is decoded: a clip the memory model says will not fit is a reject.
+    if let Some(why) = crate::memory::clip_seconds(clip.duration, &path)
+        .and_then(|secs| crate::memory::over_limit(plan, secs, ctx.clip_memory_limit))
+    {
+        return Err(reject("audio", why));
+    }
     let stem = file_stem(&clip.id);
     let record_rel = format!("{DONE_DIR}/{stem}.json");
     let record = out.join(&record_rel);
     let fingerprint = clip_fingerprint(ctx.plan_key, clip, &path);
     if let Some(mut done) = finished_earlier(&record, &fingerprint, out, plan.rate) {
         done.record = record_rel;
+        done.line = entry.line;
         return Ok(done);
     }
     let source = load_source(plan, clip, &path).map_err(|e| reject(&e.field, e.reason))?;
     let (seconds_in, source_rate, base) = (source.seconds, source.rate, source.base);
+    // A clip whose header did not say its length is measured now, before any step runs.
+    if let Some(why) = crate::memory::over_limit(plan, seconds_in, ctx.clip_memory_limit) {
+        return Err(reject("audio", why));
+    }
 
     let mut written: Vec<PathBuf> = Vec::new();
     let mut takes = Vec::with_capacity(plan.takes as usize);
     let outcome = (0..plan.takes).try_for_each(|k| {
         let take = make_take(plan, clip, &base, k, source_rate, &stem)
             .map_err(|e| reject(&e.field, e.reason))?;
-        // Stems are float so that levels recomputed from them match what was measured.
-        let rel = take_file(&stem, k);
-        let files = std::iter::once((&rel, &take.audio, plan.format)).chain(
-            take.stems
-                .iter()
-                .map(|(r, a)| (r, a, SampleFormat::Float32)),
-        );
+        let rel = take_file(&stem, k, plan.format);
+        let files = std::iter::once((&rel, &take.audio, plan.format))
+            .chain(take.stems.iter().map(|(r, a)| (r, a, STEM_FORMAT)));
         for (rel, signal, format) in files {
-            let dest = write_wav_atomically(out, rel, signal, format)
+            let dest = write_audio_atomically(out, rel, signal, format)
                 .map_err(|e| write_failure(e, |m| reject("", m)))?;
             written.push(dest);
         }
-        takes.push(take.record(k, &stem));
+        takes.push(take.record(k, &stem, plan.format));
         Ok(())
     });
     let done = ClipResult {
@@ -542,6 +847,7 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
         takes,
         resumed: false,
         record: record_rel,
+        line: entry.line,
     };
     // The takes' names are flushed before the record that counts on them.
     let takes_dir = out.join(TAKES_DIR);

@@ -6,7 +6,7 @@ use serde_json::Value;
 
 use std::path::Path;
 
-use crate::audio::{self, Audio};
+use crate::audio::{self, Audio, SampleFormat};
 use crate::dsp::resample::resample;
 use crate::recipe::Plan;
 use crate::run::TAKES_DIR;
@@ -27,18 +27,19 @@ pub struct Take {
     pub stems: Vec<(String, Audio)>,
 }
 
-/// Where take `k` of the clip whose file stem is `stem` is written inside an output folder.
-pub fn take_file(stem: &str, k: u32) -> String {
-    format!("{TAKES_DIR}/{stem}.t{k}.wav")
+/// Where take `k` of the clip whose file stem is `stem` is written inside an output folder,
+/// its extension from the output-format table.
+pub fn take_file(stem: &str, k: u32, format: SampleFormat) -> String {
+    format!("{TAKES_DIR}/{stem}.t{k}.{}", format.extension())
 }
 
 impl Take {
     /// The take's manifest line as `retake run` writes it: id `<clip id>.t<k>`, audio at
     /// [`take_file`], its duration, labels and origin.
-    pub fn record(&self, k: u32, stem: &str) -> Clip {
+    pub fn record(&self, k: u32, stem: &str, format: SampleFormat) -> Clip {
         Clip {
             id: format!("{}.t{k}", self.clip.id),
-            audio: take_file(stem, k),
+            audio: take_file(stem, k, format),
             duration: Some(self.audio.duration()),
             ..self.clip.clone()
         }
@@ -228,7 +229,8 @@ pub fn make_take(
             record.drawn = done.drawn;
             record.measured = done.measured;
             for (name, signal) in done.stems {
-                let rel = format!("{TAKES_DIR}/{stem}.t{k}.s{}-{name}.wav", i + 1);
+                let ext = crate::audio::STEM_FORMAT.extension();
+                let rel = format!("{TAKES_DIR}/{stem}.t{k}.s{}-{name}.{ext}", i + 1);
                 record
                     .stems
                     .insert(name.to_string(), Value::from(rel.clone()));

@@ -7,7 +7,7 @@ mod common;
 
 use std::path::{Path, PathBuf};
 
-use retake::audio::{Audio, AudioError, ChannelPolicy, SampleFormat, decode, write_wav};
+use retake::audio::{Audio, AudioError, ChannelPolicy, SampleFormat, decode, write_audio};
 
 /// Writes the interleaved f64 signal in argv[1] (`rate`, `channels`) once per
 /// `path|FORMAT|SUBTYPE` argument with libsndfile, then reads each file back with libsndfile
@@ -388,7 +388,7 @@ fn written_pcm16_reads_back_in_libsndfile_with_the_documented_scale() {
         rate: 16_000,
         samples,
     };
-    write_wav(&path, &audio, SampleFormat::Pcm16).unwrap();
+    write_audio(&path, &audio, SampleFormat::Pcm16).unwrap();
 
     let back = libsndfile_read(&path);
     assert_eq!(back.format, "WAV");
@@ -420,7 +420,7 @@ fn written_float32_reads_back_in_libsndfile_unchanged() {
         rate: 48_000,
         samples,
     };
-    write_wav(&path, &audio, SampleFormat::Float32).unwrap();
+    write_audio(&path, &audio, SampleFormat::Float32).unwrap();
 
     let back = libsndfile_read(&path);
     // hound writes float WAV with the extensible header, which libsndfile names WAVEX.
@@ -453,7 +453,7 @@ fn empty_audio_writes_and_decodes_as_empty() {
         rate: 16_000,
         samples: vec![],
     };
-    write_wav(&path, &audio, SampleFormat::Pcm16).unwrap();
+    write_audio(&path, &audio, SampleFormat::Pcm16).unwrap();
     let back = libsndfile_read(&path);
     assert_eq!((back.rate, back.frames), (16_000, 0));
     assert_eq!(decode(&path, ChannelPolicy::Mix).unwrap(), audio);
@@ -517,7 +517,7 @@ fn wav_chopped_at_the_end_is_truncated_with_both_counts() {
         rate: 16_000,
         samples: common::sine(440.0, 1.0, 16_000, 0.5),
     };
-    write_wav(&whole, &audio, SampleFormat::Pcm16).unwrap();
+    write_audio(&whole, &audio, SampleFormat::Pcm16).unwrap();
     let bytes = std::fs::read(&whole).unwrap();
     // Chop 1001 bytes: 500.5 frames of 16-bit mono, so 500 whole frames are gone and one
     // frame is cut in half.
@@ -590,7 +590,7 @@ fn a_non_finite_sample_is_refused_and_nothing_is_written() {
         let mut samples = vec![0.25f32; 100];
         samples[37] = bad;
         samples[80] = f32::NAN; // only the first bad index is reported
-        let e = write_wav(
+        let e = write_audio(
             &path,
             &Audio {
                 rate: 16_000,

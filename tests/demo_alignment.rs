@@ -33,6 +33,8 @@ fn run_speed(factor: f64, out: &Path) -> Vec<Clip> {
         input: &manifest,
         out,
         threads: None,
+        shard: None,
+        clip_memory_limit: retake::memory::DEFAULT_LIMIT_BYTES,
     };
     let summary = run::run(&spec, &|_| {}).expect("run");
     assert_eq!(summary.rejected, 0, "demo clips must all be accepted");

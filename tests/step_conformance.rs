@@ -333,6 +333,8 @@ fn every_step_writes_the_same_bytes_on_one_and_two_threads() {
                     input: &input,
                     out: &out,
                     threads: Some(threads),
+                    shard: None,
+                    clip_memory_limit: retake::memory::DEFAULT_LIMIT_BYTES,
                 };
                 let summary = retake::run::run(&spec, &|_| {}).unwrap();
                 assert_eq!(summary.clips_in, 3, "{name}");

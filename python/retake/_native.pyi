@@ -97,7 +97,7 @@ class Take:
     def frame_targets(self, hop: float) -> Dict[str, Any]:
         """Per-frame `line`, `word` (int32, -1 outside) and `obscured` (float32) arrays."""
     def write(self, path: _Path, format: Optional[str] = None) -> None:
-        """Write the samples as WAV ("pcm16" or "float32"; the recipe's by default)."""
+        """Write the samples in an output format ("pcm16", "pcm24", "float32", "flac16", "flac24"; the recipe's by default)."""
 
 class Corpus:
     """The clips of a manifest, by index, with errors naming the manifest line."""

@@ -211,7 +211,8 @@ impl Recipe {
     fn keep_source(&self) -> bool {
         self.plan.keep_source
     }
-    /// "pcm16" or "float32": what `Take.write` writes by default.
+    /// A name of the output-format table ("pcm16", "pcm24", "float32", "flac16",
+    /// "flac24"): what `Take.write` writes by default.
     #[getter]
     fn format(&self) -> &'static str {
         format_name(self.plan.format)
@@ -302,20 +303,17 @@ fn take_from_file(plan: &Plan, clip: &Clip, path: &Path, k: u32) -> Result<Take,
 }
 
 fn format_name(f: SampleFormat) -> &'static str {
-    match f {
-        SampleFormat::Pcm16 => "pcm16",
-        SampleFormat::Float32 => "float32",
-    }
+    f.spec().name
 }
 
+/// A format of the library's output-format table, by its recipe name.
 fn parse_format(name: &str) -> PyResult<SampleFormat> {
-    match name {
-        "pcm16" => Ok(SampleFormat::Pcm16),
-        "float32" => Ok(SampleFormat::Float32),
-        other => Err(PyValueError::new_err(format!(
-            "format: expected \"pcm16\" or \"float32\", not {other:?}"
-        ))),
-    }
+    SampleFormat::from_name(name).ok_or_else(|| {
+        PyValueError::new_err(format!(
+            "format: expected one of {}, not {name:?}",
+            SampleFormat::names().join(", ")
+        ))
+    })
 }
 
 /// One take: samples at the recipe's rate, the manifest record `retake run` would write for
@@ -332,7 +330,7 @@ struct PyTake {
 
 impl PyTake {
     fn new(py: Python<'_>, made: Take, k: u32, format: SampleFormat) -> PyResult<Self> {
-        let record = made.record(k, &file_stem(&made.clip.id));
+        let record = made.record(k, &file_stem(&made.clip.id), format);
         let rate = made.audio.rate;
         Ok(PyTake {
             samples: made.audio.samples.into_pyarray(py).unbind(),
@@ -416,8 +414,9 @@ impl PyTake {
         Ok(out)
     }
 
-    /// Write the take's audio as WAV with the library's writer (the recipe's format unless
-    /// `format` is given: "pcm16" or "float32").
+    /// Write the take's audio with the library's writer (the recipe's format unless
+    /// `format` is given: a name of the output-format table, "pcm16", "pcm24", "float32",
+    /// "flac16", "flac24").
     #[pyo3(signature = (path, format = None))]
     fn write(&self, py: Python<'_>, path: PathBuf, format: Option<&str>) -> PyResult<()> {
         let format = format.map(parse_format).transpose()?.unwrap_or(self.format);
@@ -426,7 +425,7 @@ impl PyTake {
             rate: self.rate,
             samples,
         };
-        py.detach(|| audio::write_wav(&path, &audio, format))
+        py.detach(|| audio::write_audio(&path, &audio, format))
             .map_err(|e| PyErr::new::<RetakeError, _>(e.to_string()))
     }
 
@@ -603,6 +602,8 @@ fn run<'py>(
         input: &manifest,
         out: &out,
         threads,
+        shard: None,
+        clip_memory_limit: retake::memory::DEFAULT_LIMIT_BYTES,
     };
     let result = py.detach(|| retake::run::run(&spec, &on_event));
     if let Some(err) = failed.into_inner().unwrap_or_else(|p| p.into_inner()) {

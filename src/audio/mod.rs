@@ -9,9 +9,11 @@ use serde::{Deserialize, Serialize};
 
 mod decode;
 mod encode;
+pub mod format;
 
 pub use decode::{Scan, Stream, decode, scan};
-pub use encode::write_wav;
+pub use encode::write_audio;
+pub use format::{Container, OUTPUT_FORMATS, OutputFormat, STEM_FORMAT};
 
 /// Mono samples in [-1, 1] at a known rate.
 #[derive(Debug, Clone, PartialEq)]
@@ -40,16 +42,23 @@ pub enum ChannelPolicy {
     Pick(usize),
 }
 
-/// Sample format of written WAV files.
+/// Sample format (and container) of written audio files: one row each of
+/// [`format::OUTPUT_FORMATS`].
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
 #[serde(rename_all = "lowercase")]
 pub enum SampleFormat {
-    /// 16-bit signed PCM: `round(x * 32768)`, clamped to [-32768, 32767] (the decoder's
+    /// 16-bit signed PCM WAV: `round(x * 32768)`, clamped to [-32768, 32767] (the decoder's
     /// scale, [`crate::dsp::pcm16`]).
     #[default]
     Pcm16,
-    /// 32-bit IEEE float.
+    /// 24-bit signed PCM WAV: `round(x * 8388608)`, clamped to [-8388608, 8388607].
+    Pcm24,
+    /// 32-bit IEEE float WAV.
     Float32,
+    /// 16-bit FLAC, the codes of [`SampleFormat::Pcm16`].
+    Flac16,
+    /// 24-bit FLAC, the codes of [`SampleFormat::Pcm24`].
+    Flac24,
 }
 
 /// What went wrong reading or writing audio, always with the file.

@@ -55,7 +55,7 @@ pub fn demo(out: &Path, threads: Option<usize>) -> ExitCode {
         out,
         threads,
         None,
-        false,
+        super::run::Extras::default(),
     )
 }
 

@@ -5,6 +5,8 @@ mod check;
 mod demo;
 mod export;
 mod import;
+mod jobs;
+mod join;
 mod plan;
 mod remap;
 mod report;
@@ -17,6 +19,7 @@ use std::process::ExitCode;
 use clap::{CommandFactory, Parser, Subcommand};
 use retake::audio::ChannelPolicy;
 use retake::export::Format;
+use retake::shard::ShardArg;
 
 /// How a command ended; the one place an ending becomes an exit status (the table in the
 /// README's "Exit status" section).
@@ -118,10 +121,38 @@ enum Command {
         /// Overrides the recipe's `channels`.
         #[arg(long, value_parser = parse_channels)]
         channels: Option<ChannelPolicy>,
+        /// Make only shard K of N (K from 0) into parts under OUT/parts/, for `retake join`.
+        /// `env` takes K and N from a Slurm job array (SLURM_ARRAY_TASK_ID, _MIN, _MAX or
+        /// _COUNT); `env/N` takes K from a Kubernetes Indexed Job (JOB_COMPLETION_INDEX).
+        #[arg(long, value_name = "K/N|env|env/N", value_parser = parse_shard)]
+        shard: Option<ShardArg>,
+        /// Memory one worker may need for one clip, MiB (memory model, docs/cluster.md); a
+        /// longer clip is a reject pointing at `retake slice`.
+        #[arg(long, value_name = "MIB", default_value_t = retake::memory::DEFAULT_LIMIT_BYTES >> 20,
+              value_parser = clap::value_parser!(u64).range(1..=(1 << 30)))]
+        max_clip_memory: u64,
         /// Also write the report page, OUT/report/index.html (see `retake report`).
         #[arg(long)]
         report: bool,
     },
+    /// Join the shards of a sharded run into one manifest.jsonl and rejects.jsonl.
+    ///
+    /// The result is byte for byte what one `retake run` without `--shard` writes. Refused,
+    /// naming them, when a shard is missing, unfinished, or made with another recipe or
+    /// input.
+    Join {
+        /// The recipe the shards ran.
+        recipe: PathBuf,
+        /// The input manifest the shards read.
+        #[arg(long, short)]
+        input: PathBuf,
+        /// The shared output folder.
+        #[arg(long, short)]
+        out: PathBuf,
+    },
+    /// Write ready job files for a sharded run: a Slurm array with the join after it, or a
+    /// Kubernetes Indexed Job and a join Job; CPU and memory from the memory model.
+    Jobs(jobs::JobsArgs),
     /// Write a run's report: OUT/report/index.html, figures, spectrograms and players.
     ///
     /// Opens from the file system with no network. Every figure comes from one pass over
@@ -193,8 +224,23 @@ pub fn main() -> ExitCode {
             out,
             threads,
             channels,
+            shard,
+            max_clip_memory,
             report,
-        } => run::run(&recipe, &input, &out, threads, channels, report),
+        } => run::run(
+            &recipe,
+            &input,
+            &out,
+            threads,
+            channels,
+            run::Extras {
+                shard,
+                clip_memory_limit: max_clip_memory << 20,
+                report,
+            },
+        ),
+        Command::Join { recipe, input, out } => join::join(&recipe, &input, &out),
+        Command::Jobs(args) => jobs::jobs(args),
         Command::Report(args) => report::report(&args),
         Command::Check { manifest } => check::check(&manifest),
         Command::Bank {
@@ -243,6 +289,10 @@ fn parse_channels(s: &str) -> Result<ChannelPolicy, String> {
     s.parse::<usize>()
         .map(ChannelPolicy::Pick)
         .map_err(|_| format!("`{s}`: expected `mix` or a channel number counted from 0"))
+}
+
+fn parse_shard(s: &str) -> Result<ShardArg, String> {
+    retake::shard::parse_arg(s).map_err(|e| e.to_string())
 }
 
 fn parse_format(s: &str) -> Result<Format, String> {

@@ -6,7 +6,7 @@ use std::process::ExitCode;
 
 use super::Exit;
 
-use retake::audio::{ChannelPolicy, SampleFormat};
+use retake::audio::ChannelPolicy;
 use retake::recipe;
 use retake::steps::REGISTRY;
 
@@ -29,15 +29,12 @@ pub fn plan(recipe_path: &Path) -> ExitCode {
         plan.seed,
         super::count(plan.takes as usize, "take")
     );
-    let format = match plan.format {
-        SampleFormat::Pcm16 => "16-bit PCM",
-        SampleFormat::Float32 => "32-bit float",
-    };
+    let format = plan.format.spec().label;
     let channels = match plan.channels {
         ChannelPolicy::Mix => String::from("mix of all channels"),
         ChannelPolicy::Pick(n) => format!("channel {n}"),
     };
-    println!("output  {} Hz, {format} WAV, {channels}", plan.rate);
+    println!("output  {} Hz, {format}, {channels}", plan.rate);
     let width = plan
         .steps
         .iter()

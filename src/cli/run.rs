@@ -9,6 +9,27 @@ use indicatif::{ProgressBar, ProgressStyle};
 use retake::audio::ChannelPolicy;
 use retake::recipe;
 use retake::run::{self, Event, REJECTS_NAME, RunSpec, Summary};
+use retake::shard::{self, ShardArg};
+
+/// What `run` does besides the whole run on one machine.
+pub struct Extras {
+    /// `--shard`: only this shard, into parts.
+    pub shard: Option<ShardArg>,
+    /// `--max-clip-memory`, bytes.
+    pub clip_memory_limit: u64,
+    /// `--report`: write the report page after the run.
+    pub report: bool,
+}
+
+impl Default for Extras {
+    fn default() -> Self {
+        Extras {
+            shard: None,
+            clip_memory_limit: retake::memory::DEFAULT_LIMIT_BYTES,
+            report: false,
+        }
+    }
+}
 
 pub fn run(
     recipe_path: &Path,
@@ -16,8 +37,21 @@ pub fn run(
     out: &Path,
     threads: Option<usize>,
     channels: Option<ChannelPolicy>,
-    report: bool,
+    extras: Extras,
 ) -> ExitCode {
+    let Extras {
+        shard,
+        clip_memory_limit,
+        report,
+    } = extras;
+    let shard = match shard.map(|a| shard::resolve(a, |k| std::env::var(k).ok())) {
+        None => None,
+        Some(Ok(s)) => Some(s),
+        Some(Err(e)) => {
+            eprintln!("retake: {e}");
+            return Exit::Usage.into();
+        }
+    };
     let mut plan = match recipe::load(recipe_path) {
         Ok(p) => p,
         Err(e) => {
@@ -57,6 +91,8 @@ pub fn run(
         input,
         out,
         threads,
+        shard,
+        clip_memory_limit,
     };
     let result = run::run(&spec, &on_event);
     bar.finish_and_clear();
@@ -71,8 +107,23 @@ pub fn run(
             }
         }
         Ok(summary) => {
-            print_summary(&summary, out);
-            if report {
+            // A shard's manifest and rejects are parts, for `retake join`.
+            let (manifest, rejects) = match shard.map(retake::parts::PartNames::of) {
+                Some(p) => (out.join(p.manifest()), out.join(p.rejects())),
+                None => (out.join(run::MANIFEST_NAME), out.join(REJECTS_NAME)),
+            };
+            print_summary(&summary, &manifest, &rejects);
+            if let Some(s) = shard {
+                println!(
+                    "shard   {s} done; when every shard is: retake join {} -i {} -o {}",
+                    recipe_path.display(),
+                    input.display(),
+                    out.display()
+                );
+                if report {
+                    println!("report  after the join: retake report {}", out.display());
+                }
+            } else if report {
                 let code = write_report(&summary, recipe_path, input, out);
                 if code != ExitCode::from(Exit::Done) {
                     return code;
@@ -87,7 +138,7 @@ pub fn run(
     }
 }
 
-fn print_summary(s: &Summary, out: &Path) {
+fn print_summary(s: &Summary, manifest: &Path, rejects: &Path) {
     println!(
         "clips   {} read, {} done, {} rejected",
         s.clips_in, s.clips_done, s.rejected
@@ -124,14 +175,14 @@ fn print_summary(s: &Summary, out: &Path) {
     }
     println!(
         "output  {} ({}, {:.3} h)",
-        out.join(run::MANIFEST_NAME).display(),
+        manifest.display(),
         super::count(s.takes, "take"),
         s.seconds_out / 3600.0
     );
     if s.rejected > 0 {
         println!(
             "rejects {} (one line per clip, with the reason)",
-            out.join(REJECTS_NAME).display()
+            rejects.display()
         );
     }
 }

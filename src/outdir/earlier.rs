@@ -24,6 +24,8 @@ pub const JOURNAL_NAME: &str = ".retake-earlier.jsonl";
 #[derive(Debug)]
 pub struct Earlier {
     out: PathBuf,
+    /// The journal's name inside `out` ([`JOURNAL_NAME`], or a shard's own).
+    journal: String,
     folders: Vec<&'static str>,
     files: BTreeSet<String>,
 }
@@ -43,12 +45,29 @@ impl Earlier {
         reports: &[&str],
         files_of: impl Fn(&Clip) -> Vec<String>,
     ) -> std::io::Result<Self> {
+        Self::begin_journal(out, JOURNAL_NAME, folders, manifest, reports, files_of)
+    }
+
+    /// [`Earlier::begin`] with a journal of another name (relative to `out`): a shard keeps
+    /// its own, so shards writing into one folder never take over each other's files.
+    ///
+    /// # Errors
+    /// Writing the journal or removing the earlier manifest or reports.
+    pub fn begin_journal(
+        out: &Path,
+        journal: &str,
+        folders: &[&'static str],
+        manifest: &str,
+        reports: &[&str],
+        files_of: impl Fn(&Clip) -> Vec<String>,
+    ) -> std::io::Result<Self> {
         let mut earlier = Earlier {
             out: out.to_path_buf(),
+            journal: journal.to_string(),
             folders: folders.to_vec(),
             files: BTreeSet::new(),
         };
-        let journal = out.join(JOURNAL_NAME);
+        let journal = out.join(journal);
         if let Ok(text) = std::fs::read_to_string(&journal) {
             for line in text.lines() {
                 if let Ok(rel) = serde_json::from_str::<String>(line) {
@@ -85,6 +104,12 @@ impl Earlier {
         }
     }
 
+    /// A file the new run made again (relative to the output folder): it is not removed at
+    /// the end. Calling this as files are made keeps memory to the earlier files alone.
+    pub fn keep(&mut self, rel: &str) {
+        self.files.remove(rel);
+    }
+
     fn owned(&self, rel: &str) -> bool {
         let parts: Vec<Component<'_>> = Path::new(rel).components().collect();
         matches!(parts.as_slice(), [Component::Normal(dir), Component::Normal(_)]
@@ -93,7 +118,7 @@ impl Earlier {
     }
 
     fn write_journal(&self) -> std::io::Result<()> {
-        write_atomically(&self.out.join(JOURNAL_NAME), |w| {
+        write_atomically(&self.out.join(&self.journal), |w| {
             for f in &self.files {
                 serde_json::to_writer(&mut *w, f)?;
                 w.write_all(b"\n")?;
@@ -123,7 +148,7 @@ impl Earlier {
                 sync_dir(&dir)?;
             }
         }
-        match std::fs::remove_file(self.out.join(JOURNAL_NAME)) {
+        match std::fs::remove_file(self.out.join(&self.journal)) {
             Err(e) if e.kind() != std::io::ErrorKind::NotFound => return Err(e),
             _ => {}
         }
@@ -140,6 +165,7 @@ mod tests {
     fn only_names_in_own_folders_are_taken() {
         let mut e = Earlier {
             out: PathBuf::from("out"),
+            journal: JOURNAL_NAME.into(),
             folders: vec!["takes", ".done"],
             files: BTreeSet::new(),
         };

@@ -38,7 +38,10 @@ pub enum LockError {
 
 fn holder(pid: Option<u32>) -> String {
     pid.map_or_else(
-        || "process id not written yet".into(),
+        || {
+            "no process id written: shard runs (their ids are in parts/*.lock), or one starting"
+                .into()
+        },
         |p| format!("process id {p}"),
     )
 }
@@ -64,41 +67,88 @@ impl FolderLock {
     /// # Errors
     /// [`LockError::Held`] when another holder has it, [`LockError::Io`] otherwise.
     pub fn acquire(dir: &Path) -> Result<Self, LockError> {
-        let io = |path: &Path| {
-            let path = path.to_path_buf();
-            move |source| LockError::Io { path, source }
-        };
-        std::fs::create_dir_all(dir).map_err(io(dir))?;
-        let path = dir.join(LOCK_NAME);
-        let mut file = OpenOptions::new()
-            .read(true)
-            .write(true)
-            .create(true)
-            .truncate(false)
-            .open(&path)
-            .map_err(io(&path))?;
+        Self::acquire_file(dir, LOCK_NAME)
+    }
+
+    /// Create `dir` if needed and lock the file `name` in it exclusively, without waiting,
+    /// writing this process's id into it: the lock of one shard's parts
+    /// (`parts/<k>-of-<n>.lock`) as much as the folder's.
+    ///
+    /// # Errors
+    /// [`LockError::Held`] when another holder has it, [`LockError::Io`] otherwise.
+    pub fn acquire_file(dir: &Path, name: &str) -> Result<Self, LockError> {
+        let (mut file, path) = open_lock(dir, name)?;
         match file.try_lock() {
             Ok(()) => {}
-            Err(TryLockError::WouldBlock) => {
-                let mut text = String::new();
-                let _ = file.read_to_string(&mut text);
-                return Err(LockError::Held {
-                    pid: text.trim().parse().ok(),
-                    path,
-                });
-            }
+            Err(TryLockError::WouldBlock) => return Err(held(&mut file, path)),
             Err(TryLockError::Error(source)) => return Err(LockError::Io { path, source }),
         }
         file.set_len(0)
             .and_then(|()| file.rewind())
             .and_then(|()| writeln!(file, "{}", std::process::id()))
-            .map_err(io(&path))?;
+            .map_err(|source| LockError::Io {
+                path: path.clone(),
+                source,
+            })?;
         Ok(FolderLock { file, path })
     }
 
     /// The lock file.
     pub fn path(&self) -> &Path {
         &self.path
+    }
+}
+
+/// A shared hold on a folder's lock ([`LOCK_NAME`]): any number of shard runs hold it
+/// together, while a whole run or a join (which lock it exclusively) is refused, and a shard
+/// is refused while one of those holds it. The file is left as it is (no process id: each
+/// shard writes its own into its part lock).
+#[derive(Debug)]
+pub struct SharedFolderLock {
+    _file: File,
+}
+
+impl SharedFolderLock {
+    /// Create `dir` if needed and take a shared hold on its lock, without waiting.
+    ///
+    /// # Errors
+    /// [`LockError::Held`] when a whole run or a join holds the folder, [`LockError::Io`]
+    /// otherwise.
+    pub fn acquire(dir: &Path) -> Result<Self, LockError> {
+        let (mut file, path) = open_lock(dir, LOCK_NAME)?;
+        match file.try_lock_shared() {
+            Ok(()) => Ok(SharedFolderLock { _file: file }),
+            Err(TryLockError::WouldBlock) => Err(held(&mut file, path)),
+            Err(TryLockError::Error(source)) => Err(LockError::Io { path, source }),
+        }
+    }
+}
+
+/// Open (creating) the lock file `name` in `dir`.
+fn open_lock(dir: &Path, name: &str) -> Result<(File, PathBuf), LockError> {
+    let io = |path: &Path| {
+        let path = path.to_path_buf();
+        move |source| LockError::Io { path, source }
+    };
+    std::fs::create_dir_all(dir).map_err(io(dir))?;
+    let path = dir.join(name);
+    let file = OpenOptions::new()
+        .read(true)
+        .write(true)
+        .create(true)
+        .truncate(false)
+        .open(&path)
+        .map_err(io(&path))?;
+    Ok((file, path))
+}
+
+/// The refusal of a lock someone else holds, naming the process id written in it.
+fn held(file: &mut File, path: PathBuf) -> LockError {
+    let mut text = String::new();
+    let _ = file.read_to_string(&mut text);
+    LockError::Held {
+        pid: text.trim().parse().ok(),
+        path,
     }
 }
 
@@ -128,5 +178,24 @@ mod tests {
             0
         );
         FolderLock::acquire(&out).expect("free again after the first is dropped");
+    }
+
+    #[test]
+    fn shared_holds_coexist_and_keep_the_exclusive_lock_out() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let out = dir.path().join("out");
+        let a = SharedFolderLock::acquire(&out).expect("first shard");
+        let b = SharedFolderLock::acquire(&out).expect("second shard beside it");
+        let e = FolderLock::acquire(&out).expect_err("a whole run while shards hold it");
+        assert!(e.to_string().contains("shard runs"), "{e}");
+        drop((a, b));
+        let whole = FolderLock::acquire(&out).expect("free once the shards are done");
+        let e = SharedFolderLock::acquire(&out).expect_err("a shard while a whole run holds it");
+        assert!(
+            e.to_string()
+                .contains(&format!("process id {}", std::process::id())),
+            "{e}"
+        );
+        drop(whole);
     }
 }

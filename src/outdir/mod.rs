@@ -8,5 +8,5 @@ pub mod lock;
 pub mod overlap;
 
 pub use earlier::Earlier;
-pub use lock::{FolderLock, LOCK_NAME, LockError};
+pub use lock::{FolderLock, LOCK_NAME, LockError, SharedFolderLock};
 pub use overlap::{Overwrite, Targets, refuse_overwrite};

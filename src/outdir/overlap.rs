@@ -51,11 +51,12 @@ impl Targets {
 ///
 /// # Errors
 /// [`Overwrite`] naming the input.
-pub fn refuse_overwrite<'a, W: std::fmt::Display>(
+pub fn refuse_overwrite<W: std::fmt::Display, P: AsRef<Path>>(
     targets: &Targets,
-    inputs: impl IntoIterator<Item = (W, &'a Path)>,
+    inputs: impl IntoIterator<Item = (W, P)>,
 ) -> Result<(), Overwrite> {
     for (what, input) in inputs {
+        let input = input.as_ref();
         // The file itself (links followed) and the name it has (its folder's links
         // followed): a link at an output's place is replaced, and the link is an input too.
         let named = match (input.parent(), input.file_name()) {

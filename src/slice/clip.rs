@@ -8,7 +8,7 @@ use super::window::{Window, frame_count};
 use super::{LeftOutRecord, SLICES_DIR, SliceReject, SliceSpec};
 use crate::audio::Audio;
 use crate::files::file_stem;
-use crate::files::write_wav_atomically;
+use crate::files::write_audio_atomically;
 use crate::run::{Failure, Reject, write_failure};
 use crate::seed::take_seed;
 use crate::timemap::TimeMap;
@@ -110,7 +110,7 @@ pub(super) fn slice_clip(
                 .take(c.start, c.end)
                 .map_err(|e| reject("audio", e))?,
         };
-        let dest = write_wav_atomically(spec.out, &rel, &signal, spec.format)
+        let dest = write_audio_atomically(spec.out, &rel, &signal, spec.format)
             .map_err(|e| write_failure(e, |m| reject("", m)))?;
         written.push(dest);
         outcome.seconds_out += signal.duration();

@@ -5,6 +5,7 @@
 //! written back unchanged.
 
 pub mod json_error;
+pub mod stream;
 pub mod tsv;
 
 use std::io::Write;
@@ -295,7 +296,7 @@ pub fn read_text(path: &Path) -> Result<String, Problem> {
 }
 
 /// Where a line stops being UTF-8, in a person's terms.
-fn not_utf8(raw: &[u8], e: &std::str::Utf8Error) -> String {
+pub(crate) fn not_utf8(raw: &[u8], e: &std::str::Utf8Error) -> String {
     let at = e.valid_up_to();
     let column = String::from_utf8_lossy(&raw[..at]).chars().count() + 1;
     format!(

@@ -322,3 +322,19 @@ if sys.byteorder != "little":
     pcm.byteswap()
 data = pcm.tobytes()
 "#;
+
+/// Every file of `whole` (a run on one machine) is in `sharded` with the same bytes, and
+/// `sharded` holds nothing else but its `parts/` folder. Returns how many files compared.
+pub fn assert_same_output_but_parts(whole: &Path, sharded: &Path) -> usize {
+    let a = files_under(whole);
+    let b: Vec<_> = files_under(sharded)
+        .into_iter()
+        .filter(|(name, _)| !name.starts_with("parts/"))
+        .collect();
+    let names = |v: &[(String, Vec<u8>)]| v.iter().map(|f| f.0.clone()).collect::<Vec<_>>();
+    assert_eq!(names(&a), names(&b));
+    for ((name, x), (_, y)) in a.iter().zip(&b) {
+        assert!(x == y, "{name} differs from the one-machine run");
+    }
+    a.len()
+}
