@@ -175,9 +175,12 @@ pub struct RunSpec<'a> {
     pub clip_memory_limit: u64,
 }
 
-/// One line of `rejects.jsonl`.
+/// One line of `rejects.jsonl`, the one reject format of every command that reads a
+/// manifest clip by clip (`run`, `slice`).
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct Reject {
+    /// The input manifest.
+    pub file: String,
     /// Line of the input manifest.
     pub line: usize,
     /// Clip id, when the line got that far.
@@ -193,10 +196,24 @@ pub struct Reject {
 impl From<Problem> for Reject {
     fn from(p: Problem) -> Self {
         Reject {
+            file: p.file.display().to_string(),
             line: p.line,
             id: None,
             field: p.field,
             reason: p.message,
+        }
+    }
+}
+
+impl Reject {
+    /// The reject of the clip on `line` of manifest `file`.
+    pub fn of_clip(file: &Path, line: usize, id: &str, field: &str, reason: String) -> Self {
+        Reject {
+            file: file.display().to_string(),
+            line,
+            id: Some(id.to_string()),
+            field: field.to_string(),
+            reason,
         }
     }
 }
@@ -302,6 +319,7 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
     let base = stream.base().to_path_buf();
     let ctx = ClipContext {
         plan: spec.plan,
+        manifest: spec.input,
         base: &base,
         out: spec.out,
         plan_key: plan_key(spec.plan, &plan_inputs),
@@ -540,19 +558,19 @@ fn refuse_not_a_manifest(input: &Path) -> std::io::Result<()> {
 
 /// Why a clip did not finish: a reject (the run goes on) or a failure of the output that
 /// stops the run.
-pub(crate) enum Failure<R = Reject> {
+pub(crate) enum Failure {
     /// The clip goes to the rejects.
-    Reject(R),
+    Reject(Reject),
     /// The run stops.
     Stop(RunError),
 }
 
 /// A failed write: a stop when the file system failed (no space, no permission...), which
 /// every later clip would meet too; a reject when only this file could not be encoded.
-pub(crate) fn write_failure<R>(
+pub(crate) fn write_failure(
     e: WriteError,
-    reject: impl FnOnce(String) -> Failure<R>,
-) -> Failure<R> {
+    reject: impl FnOnce(String) -> Failure,
+) -> Failure {
     if e.source.kind() == std::io::ErrorKind::Other && !e.is_out_of_space() {
         reject(e.to_string())
     } else {
@@ -660,6 +678,8 @@ pub(crate) fn remove_if_there(path: &Path) -> std::io::Result<()> {
 /// What every clip of a run shares.
 struct ClipContext<'a> {
     plan: &'a Plan,
+    /// The input manifest, named in rejects.
+    manifest: &'a Path,
     /// The folder the manifest's audio paths are relative to.
     base: &'a Path,
     out: &'a Path,
@@ -792,12 +812,13 @@ fn process_clip(ctx: &ClipContext<'_>, entry: &Entry) -> Result<ClipResult, Fail
     let (plan, out) = (ctx.plan, ctx.out);
     let clip = &entry.clip;
     let reject = |field: &str, reason: String| {
-        Failure::Reject(Reject {
-            line: entry.line,
-            id: Some(clip.id.clone()),
-            field: field.to_string(),
+        Failure::Reject(Reject::of_clip(
+            ctx.manifest,
+            entry.line,
+            &clip.id,
+            field,
             reason,
-        })
+        ))
     };
     if let Some((field, reason)) = validate(clip, None).into_iter().next() {
         return Err(reject(&field, reason));

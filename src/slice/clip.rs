@@ -5,7 +5,7 @@ use super::labels::lines_of;
 use super::plan::{LeftOut, PlannedSlice, Reason, plan};
 use super::units::{Units, find_units};
 use super::window::{Window, frame_count};
-use super::{LeftOutRecord, SLICES_DIR, SliceReject, SliceSpec};
+use super::{LeftOutRecord, SLICES_DIR, SliceSpec};
 use crate::audio::Audio;
 use crate::files::file_stem;
 use crate::files::write_audio_atomically;
@@ -35,18 +35,16 @@ pub(super) fn slice_clip(
     spec: &SliceSpec<'_>,
     manifest: &Manifest,
     entry: &Entry,
-) -> Result<ClipOutcome, Failure<SliceReject>> {
+) -> Result<ClipOutcome, Failure> {
     let clip = &entry.clip;
     let reject = |field: &str, reason: String| {
-        Failure::Reject(SliceReject {
-            file: manifest.path.display().to_string(),
-            reject: Reject {
-                line: entry.line,
-                id: Some(clip.id.clone()),
-                field: field.to_string(),
-                reason,
-            },
-        })
+        Failure::Reject(Reject::of_clip(
+            &manifest.path,
+            entry.line,
+            &clip.id,
+            field,
+            reason,
+        ))
     };
     if let Some((field, reason)) = validate(clip, None).into_iter().next() {
         return Err(reject(&field, reason));

@@ -88,17 +88,6 @@ pub struct LeftOutRecord {
     pub detail: String,
 }
 
-/// One line of `rejects.jsonl`: a clip that could not be sliced at all. The fields of a run's
-/// reject, plus the manifest it came from.
-#[derive(Debug, Clone, Serialize, PartialEq)]
-pub struct SliceReject {
-    /// The manifest.
-    pub file: String,
-    /// Line, id, field and reason.
-    #[serde(flatten)]
-    pub reject: Reject,
-}
-
 /// Figures for the closing summary.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct SliceSummary {
@@ -209,13 +198,11 @@ pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
         clips_in: manifest.entries.len() + manifest.problems.len(),
         ..SliceSummary::default()
     };
-    let mut rejects: Vec<SliceReject> = manifest
+    let mut rejects: Vec<Reject> = manifest
         .problems
         .iter()
-        .map(|p| SliceReject {
-            file: p.file.display().to_string(),
-            reject: Reject::from(p.clone()),
-        })
+        .cloned()
+        .map(Reject::from)
         .collect();
     let (mut slices, mut left_out) = (Vec::new(), Vec::new());
     for result in results {
@@ -232,7 +219,7 @@ pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
             Err(r) => rejects.push(r),
         }
     }
-    rejects.sort_by_key(|r| r.reject.line);
+    rejects.sort_by_key(|r| r.line);
     summary.rejected = rejects.len();
     summary.left_out = left_out.len();
     sync_dir(&dir).map_err(RunError::output(&dir))?;
