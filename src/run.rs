@@ -567,10 +567,7 @@ pub(crate) enum Failure {
 
 /// A failed write: a stop when the file system failed (no space, no permission...), which
 /// every later clip would meet too; a reject when only this file could not be encoded.
-pub(crate) fn write_failure(
-    e: WriteError,
-    reject: impl FnOnce(String) -> Failure,
-) -> Failure {
+pub(crate) fn write_failure(e: WriteError, reject: impl FnOnce(String) -> Failure) -> Failure {
     if e.source.kind() == std::io::ErrorKind::Other && !e.is_out_of_space() {
         reject(e.to_string())
     } else {

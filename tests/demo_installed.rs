@@ -113,3 +113,29 @@ fn an_installed_binary_runs_the_demo_with_no_checkout_reachable() {
     assert_eq!(before, after);
     assert_eq!(std::fs::read(out.join("manifest.jsonl")).unwrap(), manifest);
 }
+
+/// `retake demo --report` writes the report page of the demo run, with the recipe's seed and
+/// the run's wall time filled in (a plain `retake report` afterwards could not know them).
+#[test]
+fn demo_with_report_writes_the_page_with_the_run_figures() {
+    let tmp = tempfile::tempdir().unwrap();
+    let out = tmp.path().join("d");
+    let o = common::retake(&["demo", "--out", out.to_str().unwrap(), "--report"]);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let page = std::fs::read_to_string(out.join("report/index.html")).unwrap();
+    // The demo recipe's seed (demo_audio/recipe.toml), and a measured wall time.
+    assert!(
+        page.contains("2026"),
+        "the page does not show the recipe seed"
+    );
+    assert!(
+        !page.contains("not recorded"),
+        "the page lacks the run's wall time"
+    );
+    assert_eq!(read_jsonl(&out.join("manifest.jsonl")).len(), 40);
+}

@@ -43,7 +43,7 @@ demo_files!(
 
 /// Write the demo set under `out/demo_audio/`, leaving files that already hold the same bytes
 /// untouched (so a rerun resumes instead of seeing changed audio), and run it into `out`.
-pub fn demo(out: &Path, threads: Option<usize>) -> ExitCode {
+pub fn demo(out: &Path, threads: Option<usize>, report: bool) -> ExitCode {
     let source = out.join(SOURCE_DIR);
     if let Err((path, e)) = write_out(&source) {
         eprintln!("retake: {}: cannot write the demo set: {e}", path.display());
@@ -55,7 +55,10 @@ pub fn demo(out: &Path, threads: Option<usize>) -> ExitCode {
         out,
         threads,
         None,
-        super::run::Extras::default(),
+        super::run::Extras {
+            report,
+            ..super::run::Extras::default()
+        },
     )
 }
 

@@ -211,6 +211,9 @@ enum Command {
         /// Worker threads (default: one per core).
         #[arg(long, short = 'j', value_parser = parse_threads)]
         threads: Option<usize>,
+        /// Also write the report page, OUT/report/index.html (as `run --report`).
+        #[arg(long)]
+        report: bool,
     },
 }
 
@@ -261,7 +264,11 @@ pub fn main() -> ExitCode {
             labels,
             out,
         } => remap::run(&manifest, &labels, &out),
-        Command::Demo { out, threads } => demo::demo(&out, threads),
+        Command::Demo {
+            out,
+            threads,
+            report,
+        } => demo::demo(&out, threads, report),
         Command::Plan { recipe } => plan::plan(&recipe),
         Command::Steps => plan::steps(),
         Command::Completions { shell } => {
