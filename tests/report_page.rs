@@ -398,32 +398,8 @@ fn the_gallery_is_a_seeded_sample_and_rejects_are_grouped() {
 /// with `retake` on the PATH; each exits 0 and the pages they promise exist.
 #[test]
 fn report_examples_run_as_written() {
-    let text = std::fs::read_to_string(root().join("docs/report.md")).unwrap();
-    let blocks = common::fenced_blocks(&text, "sh");
-    assert!(!blocks.is_empty());
     let tmp = tempfile::tempdir().unwrap();
-    let bin = Path::new(env!("CARGO_BIN_EXE_retake")).parent().unwrap();
-    let path = format!(
-        "{}:{}",
-        bin.display(),
-        std::env::var("PATH").unwrap_or_default()
-    );
-    for (line, body) in blocks {
-        for command in body.lines().filter(|l| !l.trim().is_empty()) {
-            let o = std::process::Command::new("bash")
-                .args(["-euo", "pipefail", "-c", command])
-                .current_dir(tmp.path())
-                .env("PATH", &path)
-                .output()
-                .unwrap();
-            assert!(
-                o.status.success(),
-                "docs/report.md block at line {line}: `{command}` exited {:?}\n{}",
-                o.status.code(),
-                String::from_utf8_lossy(&o.stderr)
-            );
-        }
-    }
+    common::run_doc_commands("report.md", tmp.path());
     for page in [
         "retake-demo/report/index.html",
         "retake-demo/again/report/index.html",

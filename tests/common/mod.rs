@@ -338,3 +338,36 @@ pub fn assert_same_output_but_parts(whole: &Path, sharded: &Path) -> usize {
     }
     a.len()
 }
+
+/// Run every ```sh block of `docs/<page>`, command by command and in order, from `dir`
+/// with the built `retake` first on the PATH; each command must exit 0 (the failure names
+/// the page, the block's line and the command, with its output).
+pub fn run_doc_commands(page: &str, dir: &Path) {
+    let doc = root().join("docs").join(page);
+    let text = std::fs::read_to_string(&doc).unwrap();
+    let blocks = fenced_blocks(&text, "sh");
+    assert!(!blocks.is_empty(), "no sh examples in {}", doc.display());
+    let bin = Path::new(env!("CARGO_BIN_EXE_retake")).parent().unwrap();
+    let path = format!(
+        "{}:{}",
+        bin.display(),
+        std::env::var("PATH").unwrap_or_default()
+    );
+    for (line, body) in blocks {
+        for command in body.lines().filter(|l| !l.trim().is_empty()) {
+            let o = Command::new("bash")
+                .args(["-euo", "pipefail", "-c", command])
+                .current_dir(dir)
+                .env("PATH", &path)
+                .output()
+                .unwrap();
+            assert!(
+                o.status.success(),
+                "docs/{page} block at line {line}: `{command}` exited {:?}\n{}{}",
+                o.status.code(),
+                String::from_utf8_lossy(&o.stdout),
+                String::from_utf8_lossy(&o.stderr)
+            );
+        }
+    }
+}
