@@ -16,8 +16,8 @@ use crate::outdir::{Earlier, FolderLock, LockError};
 use crate::parts::{PARTS_DIR, PartNames, PartRecord, earlier_manifests, parse_part_name};
 use crate::recipe::Plan;
 use crate::run::{
-    DONE_DIR, MANIFEST_NAME, REJECTS_NAME, TAKES_DIR, add_unlisted_records, earlier_files,
-    input_key, plan_key, remove_if_there, take_files,
+    DONE_DIR, MANIFEST_NAME, REJECTS_NAME, TAKES_DIR, add_takes_of_records, earlier_files,
+    input_key, plan_key, record_names, remove_if_there, take_files,
 };
 use crate::shard::Shard;
 use crate::transcript::{parse_clip, read_manifest};
@@ -201,6 +201,10 @@ pub fn join(spec: &JoinSpec<'_>) -> Result<JoinSummary, JoinError> {
         earlier_files,
     )
     .map_err(io(spec.out))?;
+    // Every completion record here is an earlier file until a shard's part lists it.
+    for rel in record_names(&spec.out.join(DONE_DIR)) {
+        earlier.add(rel);
+    }
     let set_aside = earlier_manifests(spec.out);
     for m in &set_aside {
         if let Ok(m) = read_manifest(m) {
@@ -219,13 +223,10 @@ pub fn join(spec: &JoinSpec<'_>) -> Result<JoinSummary, JoinError> {
     // (line, shard, takes) for every clip done, and (line, shard) for every reject.
     let mut clips: Vec<(usize, usize, usize)> = Vec::new();
     let mut rejects: Vec<(usize, usize)> = Vec::new();
-    // Hashes of the completion records the shards list (the others in .done/ are earlier).
-    let mut records_done: HashSet<u64> = HashSet::new();
     for r in &records {
         for (line, takes, record) in &r.clips {
             clips.push((*line, r.shard, *takes));
             earlier.keep(record);
-            records_done.insert(crate::seed::stable_hash(&[record.as_bytes()]));
         }
         rejects.extend(r.rejects.iter().map(|&l| (l, r.shard)));
     }
@@ -295,7 +296,7 @@ pub fn join(spec: &JoinSpec<'_>) -> Result<JoinSummary, JoinError> {
         });
     }
 
-    add_unlisted_records(&mut earlier, &spec.out.join(DONE_DIR), &records_done);
+    add_takes_of_records(&mut earlier, spec.out);
     summary.removed = earlier.finish(&HashSet::new()).map_err(io(spec.out))?;
     for m in set_aside {
         remove_if_there(&m).map_err(io(&m))?;

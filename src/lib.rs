@@ -27,6 +27,7 @@
 #![deny(missing_docs)]
 
 pub mod audio;
+mod batch;
 pub mod check;
 pub mod dsp;
 pub mod export;

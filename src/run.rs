@@ -17,22 +17,19 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
-use rayon::prelude::*;
 use serde::Serialize;
 
 use crate::audio::STEM_FORMAT;
-use crate::files::{self, AtomicFile, WriteError, file_stem, write_audio_atomically};
+use crate::batch::{self, Batch, JsonLines};
+use crate::files::{self, WriteError, file_stem, write_audio_atomically};
 use crate::outdir::SharedFolderLock;
 use crate::outdir::earlier::JOURNAL_NAME;
-use crate::outdir::{
-    Earlier, FolderLock, LOCK_NAME, LockError, Overwrite, Targets, refuse_overwrite,
-};
+use crate::outdir::{Earlier, FolderLock, LOCK_NAME, LockError, Overwrite, Targets};
 use crate::parts::{PARTS_DIR, PartNames, PartRecord, earlier_manifest_name};
 use crate::recipe::Plan;
 use crate::shard::{Shard, Unit, assign};
 use crate::take::{load_source, make_take, take_file};
-use crate::transcript::stream::ManifestStream;
-use crate::transcript::{Clip, Entry, Problem, read_manifest, validate, write_manifest};
+use crate::transcript::{Clip, Entry, Problem, audio_base, validate};
 use serde_json::Value;
 
 /// Name of the output manifest inside the output folder.
@@ -45,20 +42,7 @@ pub const TAKES_DIR: &str = "takes";
 /// the same command skip the clips an interrupted run already finished.
 pub const DONE_DIR: &str = ".done";
 
-/// What the engine tells its caller while it works (the caller decides how to show it).
-#[derive(Debug, Clone, Copy)]
-pub enum Event {
-    /// Work is about to start on this many clips.
-    Started {
-        /// Clips that will be processed.
-        clips: usize,
-    },
-    /// One clip is finished (written or rejected).
-    ClipDone {
-        /// Whether it was written.
-        ok: bool,
-    },
-}
+pub use crate::batch::Event;
 
 /// Figures for the closing summary.
 #[derive(Debug, Clone, Default, PartialEq)]
@@ -237,16 +221,25 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
         path: spec.input.to_path_buf(),
         source,
     };
-    refuse_not_a_manifest(spec.input).map_err(manifest_err)?;
     let plan_inputs = spec.plan.inputs();
     let targets = Targets::new(
         spec.out,
         &[MANIFEST_NAME, REJECTS_NAME, LOCK_NAME, JOURNAL_NAME],
         &[TAKES_DIR, DONE_DIR, PARTS_DIR],
     );
-    // First pass over the manifest, as a stream: the input's fingerprint, every audio file
-    // against the output folder, the lines' shards.
-    let survey = survey(spec, &targets, &plan_inputs)?;
+    // First pass over the manifest, as a stream: every audio file against the output
+    // folder, the lines' shards; and the input's fingerprint.
+    let named = [("input manifest".to_string(), spec.input.to_path_buf())]
+        .into_iter()
+        .chain(spec.recipe.map(|r| ("recipe".to_string(), r.to_path_buf())))
+        .chain(
+            plan_inputs
+                .iter()
+                .map(|p| ("file the recipe reads".into(), p.clone())),
+        );
+    let survey = batch::survey(spec.input, &targets, named, spec.shard.is_some())?;
+    let input_key = input_key(spec.input).map_err(manifest_err)?;
+    let owner = Owner::of(&survey, spec.shard);
     let part = spec.shard.map(PartNames::of);
     let _lock = match &part {
         None => (Some(FolderLock::acquire(spec.out)?), None, None),
@@ -294,33 +287,24 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
             }),
     }
     .map_err(RunError::output(spec.out))?;
-    let threads = spec.threads.unwrap_or(0);
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads)
-        .build()
-        .map_err(|e| RunError::Threads {
-            threads,
-            reason: e.to_string(),
-        })?;
-    on_event(Event::Started {
-        clips: survey.clips,
-    });
+    if part.is_none() {
+        // Every completion record already here is an earlier file until this run makes or
+        // keeps its clip; a shard leaves them to the join: they may be another shard's.
+        for rel in record_names(&done_dir) {
+            earlier.add(rel);
+        }
+    }
+    let pool = batch::thread_pool(spec.threads)?;
     let (manifest_name, rejects_name) = match &part {
         None => (MANIFEST_NAME.to_string(), REJECTS_NAME.to_string()),
         Some(names) => (names.manifest(), names.rejects()),
     };
-    let manifest_path = spec.out.join(manifest_name);
-    let rejects_path = spec.out.join(rejects_name);
-    let mut takes_out =
-        AtomicFile::create(&manifest_path).map_err(RunError::output(&manifest_path))?;
-    let mut rejects_out =
-        AtomicFile::create(&rejects_path).map_err(RunError::output(&rejects_path))?;
-    let mut stream = ManifestStream::open(spec.input).map_err(manifest_err)?;
-    let base = stream.base().to_path_buf();
+    let mut takes_out = JsonLines::create(spec.out.join(manifest_name))?;
+    let mut rejects_out = JsonLines::create(spec.out.join(rejects_name))?;
     let ctx = ClipContext {
         plan: spec.plan,
         manifest: spec.input,
-        base: &base,
+        base: audio_base(spec.input),
         out: spec.out,
         plan_key: plan_key(spec.plan, &plan_inputs),
         clip_memory_limit: spec.clip_memory_limit,
@@ -330,105 +314,50 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
     // Per clip done, for a shard's record: (line, takes, completion record).
     let mut order = Vec::new();
     let mut reject_lines = Vec::new();
-    // Hashes of the completion records this run made or kept (the rest are earlier files).
-    let mut records_done: HashSet<u64> = HashSet::new();
-    // The bounded reorder window: clips are read, made in parallel and written in input
-    // order a window at a time, so memory holds one window, whatever the clip count.
-    let window = WINDOW_PER_THREAD * pool.current_num_threads().max(1);
-    loop {
-        let mut entries = Vec::with_capacity(window);
-        let mut rejects: Vec<Reject> = Vec::new();
-        while entries.len() + rejects.len() < window {
-            let Some(item) = stream.next_item().map_err(manifest_err)? else {
-                break;
-            };
-            let line = match &item {
-                Ok(e) => e.line,
-                Err(p) => p.line,
-            };
-            if !survey.mine(line) {
-                continue;
-            }
-            summary.clips_in += 1;
-            match item {
-                Ok(e) => entries.push(e),
-                Err(p) => rejects.push(Reject::from(p)),
-            }
-        }
-        if entries.is_empty() && rejects.is_empty() {
-            break;
-        }
-        let results: Vec<Result<ClipResult, Reject>> = pool.install(|| {
-            entries
-                .par_iter()
-                .map(|entry| {
-                    let r = match process_clip(&ctx, entry) {
-                        Ok(done) => Ok(Ok(done)),
-                        Err(Failure::Reject(r)) => Ok(Err(r)),
-                        Err(Failure::Stop(e)) => Err(e),
-                    };
-                    if let Ok(r) = &r {
-                        on_event(Event::ClipDone { ok: r.is_ok() });
-                    }
-                    r
-                })
-                .collect::<Result<_, RunError>>()
-        })?;
-        for result in results {
-            match result {
+    let engine = Batch {
+        input: spec.input,
+        survey: &survey,
+        clips: owner.clips,
+        pool: &pool,
+        on_event,
+    };
+    summary.clips_in = engine.for_each_clip(
+        &|line| owner.mine(line),
+        &|entry| process_clip(&ctx, entry),
+        &mut |outcome| {
+            match outcome {
                 Ok(done) => {
-                    let seconds: f64 = done.takes.iter().filter_map(|c| c.duration).sum();
-                    summary.clips_done += 1;
-                    summary.seconds_in += done.seconds_in;
-                    summary.takes += done.takes.len();
-                    summary.seconds_out += seconds;
-                    if done.resumed {
-                        summary.clips_resumed += 1;
-                        summary.takes_kept += done.takes.len();
-                        summary.seconds_in_kept += done.seconds_in;
-                        summary.seconds_out_kept += seconds;
-                    }
+                    summary.add(&done);
                     for f in done.takes.iter().flat_map(take_files) {
                         earlier.keep(f);
                     }
                     earlier.keep(&done.record);
-                    records_done.insert(crate::seed::stable_hash(&[done.record.as_bytes()]));
-                    write_manifest(takes_out.writer(), &done.takes)
-                        .map_err(RunError::output(&manifest_path))?;
+                    takes_out.write_all(&done.takes)?;
                     if part.is_some() {
                         order.push((done.line, done.takes.len(), done.record));
                     }
                 }
-                Err(reject) => rejects.push(reject),
+                Err(reject) => {
+                    summary.rejected += 1;
+                    rejects_out.write(&reject)?;
+                    if part.is_some() {
+                        reject_lines.push(reject.line);
+                    }
+                }
             }
-        }
-        rejects.sort_by_key(|r| r.line);
-        summary.rejected += rejects.len();
-        for r in &rejects {
-            let w = rejects_out.writer();
-            serde_json::to_writer(&mut *w, r)
-                .map_err(std::io::Error::from)
-                .and_then(|()| w.write_all(b"\n"))
-                .map_err(RunError::output(&rejects_path))?;
-            if part.is_some() {
-                reject_lines.push(r.line);
-            }
-        }
-    }
+            Ok(())
+        },
+    )?;
     files::sync_dir(&done_dir).map_err(RunError::output(&done_dir))?;
-    takes_out
-        .commit()
-        .map_err(RunError::output(&manifest_path))?;
-    rejects_out
-        .commit()
-        .map_err(RunError::output(&rejects_path))?;
+    takes_out.commit()?;
+    rejects_out.commit()?;
     if let (Some(names), Some(shard)) = (&part, spec.shard) {
         // Written last: its presence says the shard finished.
         let record = PartRecord {
             shard: shard.index,
             shards: shard.count,
             recipe: format!("{:016x}", ctx.plan_key),
-            input: format!("{:016x}", survey.input_key),
+            input: format!("{input_key:016x}"),
             clips: order,
             rejects: reject_lines,
         };
@@ -438,9 +367,8 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
         })?;
     } else {
         // Records of clips not done now (dropped from the input, rejected, made by another
-        // plan) and the takes they list are earlier files too. A shard leaves them to the
-        // join: they may be another shard's.
-        add_unlisted_records(&mut earlier, &done_dir, &records_done);
+        // plan) are still earlier files: the takes they list are too.
+        add_takes_of_records(&mut earlier, spec.out);
     }
     summary.removed = earlier
         .finish(&HashSet::new())
@@ -449,24 +377,58 @@ pub fn run(spec: &RunSpec<'_>, on_event: &(dyn Fn(Event) + Sync)) -> Result<Summ
     Ok(summary)
 }
 
-/// Clips in the reorder window per worker thread: enough that a slow clip rarely leaves a
-/// worker idle at the end of a window, few enough that a window's records stay small.
-const WINDOW_PER_THREAD: usize = 64;
-
-/// What the first pass over the manifest found.
-struct Survey {
-    /// Fingerprint of the manifest's bytes.
-    input_key: u64,
-    /// Clips this run makes (a shard's share, or all; bad lines not counted).
-    clips: usize,
-    /// The shard of every line and this run's shard, for a shard run.
-    owner: Option<(Vec<u32>, usize)>,
+impl Summary {
+    /// Count a finished clip.
+    fn add(&mut self, done: &ClipResult) {
+        let seconds: f64 = done.takes.iter().filter_map(|c| c.duration).sum();
+        self.clips_done += 1;
+        self.seconds_in += done.seconds_in;
+        self.takes += done.takes.len();
+        self.seconds_out += seconds;
+        if done.resumed {
+            self.clips_resumed += 1;
+            self.takes_kept += done.takes.len();
+            self.seconds_in_kept += done.seconds_in;
+            self.seconds_out_kept += seconds;
+        }
+    }
 }
 
-impl Survey {
+/// Which lines a run makes: all, or a shard's share.
+struct Owner {
+    /// The shard of every line and this run's shard, for a shard run.
+    shards: Option<(Vec<u32>, usize)>,
+    /// Clips this run makes (bad lines not counted).
+    clips: usize,
+}
+
+impl Owner {
+    /// The owner of every line of a surveyed manifest (with its units) for `shard`.
+    fn of(survey: &batch::Survey, shard: Option<Shard>) -> Self {
+        let Some(shard) = shard else {
+            return Owner {
+                shards: None,
+                clips: survey.clips,
+            };
+        };
+        let owner: Vec<u32> = assign(&survey.units, shard.count)
+            .into_iter()
+            .map(|s| s as u32)
+            .collect();
+        let clips = owner
+            .iter()
+            .zip(&survey.units)
+            .filter(|(o, u)| **o as usize == shard.index && matches!(u, Unit::Clip(_)))
+            .count();
+        Owner {
+            shards: Some((owner, shard.index)),
+            clips,
+        }
+    }
+
     /// Whether line `line` (from 1) is this run's.
     fn mine(&self, line: usize) -> bool {
-        match &self.owner {
+        match &self.shards {
             None => true,
             Some((owner, index)) => {
                 line.checked_sub(1)
@@ -476,84 +438,6 @@ impl Survey {
             }
         }
     }
-}
-
-/// The first pass: the input's fingerprint, every clip's audio (and the recipe and the
-/// files it reads) refused when the output would overwrite it, and each line's shard.
-fn survey(
-    spec: &RunSpec<'_>,
-    targets: &Targets,
-    plan_inputs: &[PathBuf],
-) -> Result<Survey, RunError> {
-    let manifest_err = |source| RunError::Manifest {
-        path: spec.input.to_path_buf(),
-        source,
-    };
-    let input_key = input_key(spec.input).map_err(manifest_err)?;
-    let named = [("input manifest".to_string(), spec.input.to_path_buf())]
-        .into_iter()
-        .chain(spec.recipe.map(|r| ("recipe".to_string(), r.to_path_buf())))
-        .chain(
-            plan_inputs
-                .iter()
-                .map(|p| ("file the recipe reads".into(), p.clone())),
-        );
-    refuse_overwrite(targets, named)?;
-    let mut stream = ManifestStream::open(spec.input).map_err(manifest_err)?;
-    let base = stream.base().to_path_buf();
-    // Only a shard run keeps a unit per line (to balance the shards).
-    let mut units = Vec::new();
-    let mut clips = 0;
-    let keep_units = spec.shard.is_some();
-    while let Some(item) = stream.next_item().map_err(manifest_err)? {
-        match item {
-            Err(_) if keep_units => units.push(Unit::Bad),
-            Err(_) => {}
-            Ok(entry) => {
-                clips += 1;
-                if keep_units {
-                    units.push(Unit::Clip(entry.clip.duration));
-                }
-                let what = format!("audio of clip `{}` (line {})", entry.clip.id, entry.line);
-                refuse_overwrite(targets, [(what, base.join(&entry.clip.audio))])?;
-            }
-        }
-    }
-    let is_clip = |u: &Unit| matches!(u, Unit::Clip(_));
-    let (clips, owner) = match spec.shard {
-        None => (clips, None),
-        Some(shard) => {
-            let owner: Vec<u32> = assign(&units, shard.count)
-                .into_iter()
-                .map(|s| s as u32)
-                .collect();
-            let mine = owner
-                .iter()
-                .zip(&units)
-                .filter(|(o, u)| **o as usize == shard.index && is_clip(u))
-                .count();
-            (mine, Some((owner, shard.index)))
-        }
-    };
-    Ok(Survey {
-        input_key,
-        clips,
-        owner,
-    })
-}
-
-/// A file none of whose first lines is a clip is checked whole ([`read_manifest`]), so a
-/// recipe or a JSON document given as the manifest is refused as such, not line by line.
-fn refuse_not_a_manifest(input: &Path) -> std::io::Result<()> {
-    let mut stream = ManifestStream::open(input)?;
-    for _ in 0..64 {
-        match stream.next_item()? {
-            None => break,
-            Some(Ok(_)) => return Ok(()),
-            Some(Err(_)) => {}
-        }
-    }
-    read_manifest(input).map(|_| ())
 }
 
 /// Why a clip did not finish: a reject (the run goes on) or a failure of the output that
@@ -616,15 +500,34 @@ pub(crate) fn earlier_files(c: &Clip) -> Vec<String> {
     }
 }
 
-/// Completion records in `.done/` that this run did not make or keep (`done` holds the
-/// hashes of those it did) and the takes they list, as earlier files: removed at the end.
-pub(crate) fn add_unlisted_records(earlier: &mut Earlier, done_dir: &Path, done: &HashSet<u64>) {
-    for (rel, record) in earlier_records(done_dir, done) {
-        earlier.add(rel);
-        for f in record.takes.iter().flat_map(take_files) {
-            earlier.add(f.to_string());
+/// The completion records still set for removal (their clips were not made or kept now)
+/// and the takes they list, as earlier files: removed at the end. Records are read one at a
+/// time; a file there that does not read as one is not ours and is left alone.
+pub(crate) fn add_takes_of_records(earlier: &mut Earlier, out: &Path) {
+    for rel in earlier.pending_in(DONE_DIR) {
+        let record = std::fs::read_to_string(out.join(&rel))
+            .ok()
+            .and_then(|text| serde_json::from_str::<ClipResult>(&text).ok());
+        match record {
+            Some(record) => {
+                for f in record.takes.iter().flat_map(take_files) {
+                    earlier.add(f.to_string());
+                }
+            }
+            None => earlier.keep(&rel),
         }
     }
+}
+
+/// The names (relative to the output folder) of the completion records in `done_dir`.
+pub(crate) fn record_names(done_dir: &Path) -> impl Iterator<Item = String> {
+    std::fs::read_dir(done_dir)
+        .into_iter()
+        .flatten()
+        .filter_map(Result::ok)
+        .filter_map(|e| e.file_name().into_string().ok())
+        .filter(|name| name.ends_with(".json"))
+        .map(|name| format!("{DONE_DIR}/{name}"))
 }
 
 /// A shard starting in a folder with a joined manifest: move it to `parts/` under a name
@@ -695,32 +598,6 @@ pub(crate) fn take_files(take: &Clip) -> impl Iterator<Item = &str> {
         .flat_map(|s| s.stems.values())
         .filter_map(Value::as_str);
     std::iter::once(take.audio.as_str()).chain(stems)
-}
-
-/// Completion records in `.done/` (relative path, content) but those whose path's hash is
-/// in `skip`, read one at a time; files there that do not read as one are not ours and
-/// are left alone.
-fn earlier_records<'a>(
-    done_dir: &Path,
-    skip: &'a HashSet<u64>,
-) -> impl Iterator<Item = (String, ClipResult)> + 'a {
-    std::fs::read_dir(done_dir)
-        .into_iter()
-        .flatten()
-        .filter_map(Result::ok)
-        .filter_map(move |e| {
-            let name = e.file_name().into_string().ok()?;
-            if !name.ends_with(".json") {
-                return None;
-            }
-            let rel = format!("{DONE_DIR}/{name}");
-            if skip.contains(&crate::seed::stable_hash(&[rel.as_bytes()])) {
-                return None;
-            }
-            let text = std::fs::read_to_string(e.path()).ok()?;
-            let record: ClipResult = serde_json::from_str(&text).ok()?;
-            Some((rel, record))
-        })
 }
 
 /// The plan's fingerprint with the size and modification time of every file its steps

@@ -1,7 +1,7 @@
 //! `retake slice` end to end on a long session built from the demo (tests/common/session.rs)
 //! and on small made-up clips: limits, words kept whole and in place, samples equal to the
 //! source's (read back by soundfile), word energy inside the rewritten timings, left-out
-//! stretches, rejects and thread-count independence.
+//! stretches, rejects, output formats and thread-count independence.
 
 mod common;
 
@@ -55,8 +55,15 @@ fn slice_words(c: &Value) -> Vec<(f64, f64, String)> {
 }
 
 /// Everything a slice of the session must satisfy, for limits `shortest..=longest`.
-/// `float`: the slices were written as float WAV (samples must be equal), else 16-bit PCM.
-fn check_session_slices(s: &Session, out: &Path, shortest: f64, longest: f64, float: bool) {
+/// `float`: the slices were written as float WAV (samples must be equal), else 16-bit PCM
+/// (WAV, or FLAC when `ext` is `flac`).
+fn check_session_slices(
+    s: &Session,
+    out: &Path,
+    (shortest, longest): (f64, f64),
+    float: bool,
+    ext: &str,
+) {
     let slices = read_jsonl(&out.join("manifest.jsonl"));
     let source_words = s.words();
     // Every word is in a slice and no slice is longer than `longest`.
@@ -71,7 +78,10 @@ fn check_session_slices(s: &Session, out: &Path, shortest: f64, longest: f64, fl
     let mut split_lines = 0;
     for (k, c) in slices.iter().enumerate() {
         assert_eq!(c["id"], format!("fjellvik-night-shift.c{k}"));
-        assert_eq!(c["audio"], format!("slices/fjellvik-night-shift.c{k}.wav"));
+        assert_eq!(
+            c["audio"],
+            format!("slices/fjellvik-night-shift.c{k}.{ext}")
+        );
         assert_eq!(c["site"], "fjellvik-cold-store");
         assert_eq!(c["shift"], "night");
         let (d, from, to) = (
@@ -263,7 +273,7 @@ fn a_long_session_is_sliced_within_the_limits_with_every_word_kept_in_place() {
         ""
     );
     assert!(stdout.contains("1 clips in"), "{stdout}");
-    check_session_slices(&s, &out, 2.0, 15.0, false);
+    check_session_slices(&s, &out, (2.0, 15.0), false, "wav");
     // The output is a manifest like any other: `retake check` finds nothing wrong with it
     // (labels inside each slice, `duration` within 1 ms of the audio).
     let manifest = out.join("manifest.jsonl");
@@ -285,11 +295,52 @@ fn tight_limits_split_lines_between_words_and_float_slices_equal_the_source() {
         "0.05..0.3",
         "--seed",
         "9",
-        "--float",
+        "--format",
+        "float32",
     ];
     let (code, stdout) = slice(&s.manifest, &out, &options);
     assert_eq!(code, Some(0), "{stdout}");
-    check_session_slices(&s, &out, 1.0, 2.5, true);
+    check_session_slices(&s, &out, (1.0, 2.5), true, "wav");
+}
+
+/// Slices go through the output-format table as takes do: `--format flac16` writes `.flac`
+/// files that libsndfile (through soundfile, from PyPI) decodes to the session's samples as
+/// 16-bit PCM, and the manifest is a 16-bit WAV run's but for the extension.
+#[test]
+fn flac_slices_decode_to_the_sixteen_bit_samples() {
+    let tmp = tempfile::tempdir().unwrap();
+    let s = session::build(tmp.path(), 180.0);
+    let (flac, wav) = (tmp.path().join("flac"), tmp.path().join("wav"));
+    let options = ["--longest", "9", "--seed", "4"];
+    let (code, stdout) = slice(
+        &s.manifest,
+        &flac,
+        &[&options[..], &["--format", "flac16"]].concat(),
+    );
+    assert_eq!(code, Some(0), "{stdout}");
+    slice(&s.manifest, &wav, &options);
+    let slices = read_jsonl(&flac.join("manifest.jsonl"));
+    assert!(slices.len() >= 10, "{} slices", slices.len());
+    for c in &slices {
+        let audio = c["audio"].as_str().unwrap();
+        assert!(
+            audio.starts_with("slices/") && audio.ends_with(".flac"),
+            "{audio}"
+        );
+        assert!(flac.join(audio).is_file(), "{audio}");
+    }
+    let as_wav: Vec<String> = std::fs::read_to_string(flac.join("manifest.jsonl"))
+        .unwrap()
+        .lines()
+        .map(|l| l.replace(".flac\"", ".wav\""))
+        .collect();
+    let wav_lines: Vec<String> = std::fs::read_to_string(wav.join("manifest.jsonl"))
+        .unwrap()
+        .lines()
+        .map(str::to_string)
+        .collect();
+    assert_eq!(as_wav, wav_lines);
+    check_session_slices(&s, &flac, (2.0, 9.0), false, "flac");
 }
 
 #[test]
@@ -501,6 +552,8 @@ fn an_untimed_clip_too_long_is_left_out_and_bad_options_are_usage_errors() {
         &["--pad", "0.3..0.1"],
         &["--pad=-0.1"],
         &["--longest", "0"],
+        &["--format", "mp3"],
+        &["--float", "--format", "pcm24"],
     ] {
         let mut args = vec![
             "slice",

@@ -2,13 +2,15 @@
 //! 16-bit WAV and float. Checked with libsndfile (python-soundfile 0.14.0 from PyPI, the
 //! reference venv): a 16-bit FLAC take decodes to exactly the codes of the 16-bit WAV take,
 //! a 24-bit FLAC to those of the 24-bit WAV, and the 24-bit codes lie within one 16-bit step
-//! of the 16-bit ones (the same float, rounded on two grids).
+//! of the 16-bit ones (the same float, rounded on two grids). retake's own decoder reads its
+//! FLAC takes back, and their STREAMINFO follows RFC 9639.
 
 mod common;
 
 use std::path::{Path, PathBuf};
 
 use common::{demo, read_jsonl, retake, run_python};
+use retake::audio::{self, ChannelPolicy};
 
 const RECIPE: &str = "seed = 5\ntakes = 2\nkeep_source = true\nrate = 16000\nformat = \"FORMAT\"\n\n[[step]]\ndo = \"speed\"\nfactor = [0.9, 1.1]\n\n[[step]]\ndo = \"noise\"\nbank = \"NOISE\"\nsnr_db = { low = 5.0, high = 20.0 }\n\n[[step]]\ndo = \"gain\"\ndb = { low = -3.0, high = 3.0 }\n";
 
@@ -134,6 +136,40 @@ fn flac_takes_decode_to_the_codes_of_the_wav_takes() {
         without_ext(&flac16, ".flac"),
     );
     assert!(a == b, "manifests differ beyond the take files' extensions");
+
+    // Takes can go back in: retake's own decoder reads every FLAC take to the samples of the
+    // WAV take of the same depth, and `check` passes the FLAC run's manifest.
+    for (wav, flac) in [("pcm16", &flac16), ("pcm24", &flac24)] {
+        for t in read_jsonl(&flac.join("manifest.jsonl")) {
+            let rel = t["audio"].as_str().unwrap();
+            let got = audio::decode(&flac.join(rel), ChannelPolicy::Mix)
+                .unwrap_or_else(|e| panic!("{rel}: {e}"));
+            let wav_rel = rel.replace(".flac", ".wav");
+            let want =
+                audio::decode(&tmp.path().join(wav).join(&wav_rel), ChannelPolicy::Mix).unwrap();
+            assert_eq!(
+                (got.rate, got.samples.len()),
+                (want.rate, want.samples.len()),
+                "{rel}"
+            );
+            assert!(
+                got.samples == want.samples,
+                "{rel}: samples differ from {wav_rel}"
+            );
+            // RFC 9639, 8.2: STREAMINFO's minimum block size excludes the last block, so a
+            // stream of several fixed-size blocks states one block size twice.
+            let bytes = std::fs::read(flac.join(rel)).unwrap();
+            let (min, max) = (
+                u16::from_be_bytes([bytes[8], bytes[9]]),
+                u16::from_be_bytes([bytes[10], bytes[11]]),
+            );
+            if got.samples.len() > usize::from(max) {
+                assert_eq!(min, max, "{rel}: STREAMINFO block sizes");
+            }
+        }
+        let o = retake(&["check", flac.join("manifest.jsonl").to_str().unwrap()]);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stdout));
+    }
 }
 
 #[test]

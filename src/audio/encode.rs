@@ -159,8 +159,18 @@ fn write_flac(path: &Path, audio: &Audio, format: SampleFormat) -> Result<(), Au
     let source =
         flacenc::source::MemSource::from_samples(&codes, 1, usize::from(bits), audio.rate as usize);
     drop(codes);
-    let stream = flacenc::encode_with_fixed_block_size(&config, source, config.block_size)
+    let mut stream = flacenc::encode_with_fixed_block_size(&config, source, config.block_size)
         .map_err(|e| write_err(format!("FLAC encoder: {e}")))?;
+    // STREAMINFO's minimum block size excludes the last block (RFC 9639, 8.2); flacenc
+    // counts the last, shorter one, and a stream whose minimum and maximum differ reads as
+    // one of variable block size, which symphonia (our own decoder) then refuses.
+    if stream.frame_count() > 1 {
+        let max = stream.stream_info().max_block_size();
+        stream
+            .stream_info_mut()
+            .set_block_sizes(max, max)
+            .map_err(|e| write_err(format!("FLAC encoder: {e}")))?;
+    }
     let mut sink = flacenc::bitsink::ByteSink::new();
     stream
         .write(&mut sink)

@@ -8,6 +8,7 @@ mod import;
 mod jobs;
 mod join;
 mod plan;
+mod progress;
 mod remap;
 mod report;
 mod run;
@@ -296,6 +297,15 @@ fn parse_channels(s: &str) -> Result<ChannelPolicy, String> {
     s.parse::<usize>()
         .map(ChannelPolicy::Pick)
         .map_err(|_| format!("`{s}`: expected `mix` or a channel number counted from 0"))
+}
+
+fn parse_audio_format(s: &str) -> Result<retake::audio::SampleFormat, String> {
+    retake::audio::SampleFormat::from_name(s).ok_or_else(|| {
+        format!(
+            "`{s}`: expected an output format: {}",
+            retake::audio::SampleFormat::names().join(", ")
+        )
+    })
 }
 
 fn parse_shard(s: &str) -> Result<ShardArg, String> {

@@ -5,7 +5,6 @@ use std::process::ExitCode;
 
 use super::Exit;
 
-use indicatif::{ProgressBar, ProgressStyle};
 use retake::audio::ChannelPolicy;
 use retake::recipe;
 use retake::run::{self, Event, REJECTS_NAME, RunSpec, Summary};
@@ -65,26 +64,8 @@ pub fn run(
     for w in &plan.warnings {
         eprintln!("retake: warning: {w}");
     }
-    // Hidden when stderr is not a terminal, so piped and logged runs stay clean.
-    let bar = ProgressBar::new(0);
-    bar.set_style(
-        ProgressStyle::with_template(
-            "{elapsed_precise} [{wide_bar}] {pos}/{len} clips, {msg}eta {eta}",
-        )
-        .expect("valid progress template")
-        .progress_chars("=> "),
-    );
-    let rejected = std::sync::atomic::AtomicUsize::new(0);
-    let on_event = |e: Event| match e {
-        Event::Started { clips } => bar.set_length(clips as u64),
-        Event::ClipDone { ok } => {
-            if !ok {
-                let n = rejected.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
-                bar.set_message(format!("{n} rejected, "));
-            }
-            bar.inc(1);
-        }
-    };
+    let progress = super::progress::ClipProgress::new();
+    let on_event = |e: Event| progress.on_event(e);
     let spec = RunSpec {
         plan: &plan,
         recipe: Some(recipe_path),
@@ -95,7 +76,7 @@ pub fn run(
         clip_memory_limit,
     };
     let result = run::run(&spec, &on_event);
-    bar.finish_and_clear();
+    progress.finish();
     match result {
         Err(e) => {
             eprintln!("retake: {e}");

@@ -31,8 +31,12 @@ pub struct SliceArgs {
     /// Seed of the pad draws.
     #[arg(long, default_value_t = 0)]
     seed: u64,
-    /// Write 32-bit float WAV instead of 16-bit PCM.
-    #[arg(long)]
+    /// Output format of the slices, from the output-format table: pcm16 (16-bit WAV),
+    /// pcm24, float32 (samples exactly as decoded), flac16 or flac24.
+    #[arg(long, value_name = "NAME", default_value = "pcm16", value_parser = super::parse_audio_format)]
+    format: SampleFormat,
+    /// The same as `--format float32`.
+    #[arg(long, hide = true, conflicts_with = "format")]
     float: bool,
     /// Worker threads (default: one per core).
     #[arg(long, short = 'j', value_parser = super::parse_threads)]
@@ -75,12 +79,15 @@ pub fn slice(args: SliceArgs) -> ExitCode {
         format: if args.float {
             SampleFormat::Float32
         } else {
-            SampleFormat::Pcm16
+            args.format
         },
         channels: args.channels,
         threads: args.threads,
     };
-    match slice::slice(&spec) {
+    let progress = super::progress::ClipProgress::new();
+    let result = slice::slice(&spec, &|e| progress.on_event(e));
+    progress.finish();
+    match result {
         Err(e) => {
             eprintln!("retake: {e}");
             // An output over the input is a command line to change; the rest could not run.

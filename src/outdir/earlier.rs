@@ -110,6 +110,15 @@ impl Earlier {
         self.files.remove(rel);
     }
 
+    /// The files set for removal so far in folder `folder` (relative to the output folder).
+    pub fn pending_in(&self, folder: &str) -> Vec<String> {
+        self.files
+            .iter()
+            .filter(|f| Path::new(f).parent() == Some(Path::new(folder)))
+            .cloned()
+            .collect()
+    }
+
     fn owned(&self, rel: &str) -> bool {
         let parts: Vec<Component<'_>> = Path::new(rel).components().collect();
         matches!(parts.as_slice(), [Component::Normal(dir), Component::Normal(_)]

@@ -12,11 +12,12 @@ use crate::files::write_audio_atomically;
 use crate::run::{Failure, Reject, write_failure};
 use crate::seed::take_seed;
 use crate::timemap::TimeMap;
-use crate::transcript::{Clip, Entry, Manifest, Origin, StepRecord, validate};
+use crate::transcript::{Clip, Entry, Origin, StepRecord, validate};
+use std::path::Path;
 
 /// What one source clip gave.
 #[derive(Debug, Default)]
-pub(super) struct ClipOutcome {
+pub(crate) struct ClipOutcome {
     /// Output manifest records, in order.
     pub slices: Vec<Clip>,
     /// Stretches that could not be sliced within the limits.
@@ -33,23 +34,19 @@ pub(super) struct ClipOutcome {
 /// a write the file system refuses stops the whole run.
 pub(super) fn slice_clip(
     spec: &SliceSpec<'_>,
-    manifest: &Manifest,
+    base: &Path,
     entry: &Entry,
 ) -> Result<ClipOutcome, Failure> {
     let clip = &entry.clip;
     let reject = |field: &str, reason: String| {
         Failure::Reject(Reject::of_clip(
-            &manifest.path,
-            entry.line,
-            &clip.id,
-            field,
-            reason,
+            spec.input, entry.line, &clip.id, field, reason,
         ))
     };
     if let Some((field, reason)) = validate(clip, None).into_iter().next() {
         return Err(reject(&field, reason));
     }
-    let path = manifest.base().join(&clip.audio);
+    let path = base.join(&clip.audio);
     let audio_err = |e: crate::audio::AudioError| reject("audio", e.to_string());
     let (total, sample_rate) = frame_count(&path, spec.channels).map_err(audio_err)?;
     if total == 0 {
@@ -87,7 +84,7 @@ pub(super) fn slice_clip(
     let mut written = Vec::new();
     let mut window = Window::open(&path, spec.channels).map_err(audio_err)?;
     let result = slices.iter().enumerate().try_for_each(|(k, c)| {
-        let rel = format!("{SLICES_DIR}/{stem}.c{k}.wav");
+        let rel = slice_file(&stem, k, spec.format);
         let at = SliceAt {
             k,
             rel: &rel,
@@ -135,6 +132,12 @@ pub(super) fn slice_clip(
         return Err(r);
     }
     Ok(outcome)
+}
+
+/// Where slice `k` of the clip with file stem `stem` is written, relative to the output
+/// folder; the extension comes from the output-format table.
+pub fn slice_file(stem: &str, k: usize, format: crate::audio::SampleFormat) -> String {
+    format!("{SLICES_DIR}/{stem}.c{k}.{}", format.extension())
 }
 
 /// Where slice `k` goes and what it is cut from.

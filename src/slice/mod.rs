@@ -6,8 +6,9 @@
 //! labels to each slice's timeline ([`labels`]). A clip without timings (bare `text`) becomes
 //! one slice when its length is within the limits.
 //!
-//! Clips run in parallel, and every pad is drawn from a stream fixed by (seed, clip id,
-//! gap), so the output is byte-identical for any thread count. Files are written under a
+//! Clips run in parallel on the batch engine `run` uses, and every pad is drawn from a
+//! stream fixed by (seed, clip id, gap), so the output is byte-identical for any thread
+//! count. Files are written under a
 //! temporary name and renamed. Speech that cannot be sliced within the limits goes to
 //! `left_out.jsonl`; a clip that cannot be processed at all goes to `rejects.jsonl`, and
 //! the run goes on. A recording is decoded front to back as its slices need it
@@ -19,18 +20,19 @@ pub mod plan;
 pub mod units;
 mod window;
 
-use std::path::{Path, PathBuf};
+use std::collections::HashSet;
+use std::path::Path;
 use std::time::Instant;
 
-use rayon::prelude::*;
 use serde::Serialize;
 
 use crate::audio::{ChannelPolicy, SampleFormat};
+use crate::batch::{self, Batch, JsonLines};
 use crate::files::{remove_stale_temp_files, sync_dir};
 use crate::outdir::earlier::JOURNAL_NAME;
-use crate::outdir::{Earlier, FolderLock, LOCK_NAME, Targets, refuse_overwrite};
-use crate::run::{Failure, MANIFEST_NAME, REJECTS_NAME, Reject, RunError, write_atomically};
-use crate::transcript::{read_manifest, write_manifest};
+use crate::outdir::{Earlier, FolderLock, LOCK_NAME, Targets};
+use crate::run::{Event, MANIFEST_NAME, REJECTS_NAME, RunError};
+use crate::transcript::audio_base;
 use plan::{Limits, PadRange, PlanSpec, Reason};
 
 /// Folder for slice audio inside the output folder.
@@ -112,17 +114,19 @@ pub struct SliceSummary {
     pub wall_seconds: f64,
 }
 
-/// Slice every clip of a manifest.
+/// Slice every clip of a manifest, through the batch engine `run` uses: the manifest is
+/// read as a stream, clips are sliced in parallel a bounded window at a time, and the
+/// manifest, left-out stretches and rejects are written in input order as each window
+/// finishes, so memory does not grow with the number of clips.
 ///
 /// # Errors
 /// Only run-wide failures (manifest unreadable, output not writable, no threads); a bad
 /// clip is a reject and a stretch that does not fit is left out, neither is an error.
-pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
+pub fn slice(
+    spec: &SliceSpec<'_>,
+    on_event: &(dyn Fn(Event) + Sync),
+) -> Result<SliceSummary, RunError> {
     let started = Instant::now();
-    let manifest = read_manifest(spec.input).map_err(|source| RunError::Manifest {
-        path: spec.input.to_path_buf(),
-        source,
-    })?;
     let targets = Targets::new(
         spec.out,
         &[
@@ -134,23 +138,8 @@ pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
         ],
         &[SLICES_DIR],
     );
-    let audio: Vec<(String, PathBuf)> = manifest
-        .entries
-        .iter()
-        .map(|e| {
-            (
-                format!("audio of clip `{}`", e.clip.id),
-                manifest.base().join(&e.clip.audio),
-            )
-        })
-        .collect();
-    let inputs = audio.iter().map(|(w, p)| (w.clone(), p.as_path()));
-    refuse_overwrite(
-        &targets,
-        [("input manifest".to_string(), spec.input)]
-            .into_iter()
-            .chain(inputs),
-    )?;
+    let named = [("input manifest".to_string(), spec.input.to_path_buf())];
+    let survey = batch::survey(spec.input, &targets, named, false)?;
     let _lock = FolderLock::acquire(spec.out)?;
     let dir = spec.out.join(SLICES_DIR);
     std::fs::create_dir_all(&dir).map_err(RunError::output(&dir))?;
@@ -159,7 +148,7 @@ pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
     }
     // Slices an earlier run wrote here (with other limits, say) that this run does not make
     // again are removed once the new manifest is in place, even after a kill in between.
-    let earlier = Earlier::begin(
+    let mut earlier = Earlier::begin(
         spec.out,
         &[SLICES_DIR],
         MANIFEST_NAME,
@@ -174,73 +163,59 @@ pub fn slice(spec: &SliceSpec<'_>) -> Result<SliceSummary, RunError> {
         },
     )
     .map_err(RunError::output(spec.out))?;
-    let threads = spec.threads.unwrap_or(0);
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads)
-        .build()
-        .map_err(|e| RunError::Threads {
-            threads,
-            reason: e.to_string(),
-        })?;
-    let results: Vec<_> = pool.install(|| {
-        manifest
-            .entries
-            .par_iter()
-            .map(|entry| match clip::slice_clip(spec, &manifest, entry) {
-                Ok(done) => Ok(Ok(done)),
-                Err(Failure::Reject(r)) => Ok(Err(r)),
-                Err(Failure::Stop(e)) => Err(e),
-            })
-            .collect::<Result<Vec<_>, RunError>>()
-    })?;
-
-    let mut summary = SliceSummary {
-        clips_in: manifest.entries.len() + manifest.problems.len(),
-        ..SliceSummary::default()
+    let pool = batch::thread_pool(spec.threads)?;
+    let mut slices_out = JsonLines::create(spec.out.join(MANIFEST_NAME))?;
+    let mut left_out_out = JsonLines::create(spec.out.join(LEFT_OUT_NAME))?;
+    let mut rejects_out = JsonLines::create(spec.out.join(REJECTS_NAME))?;
+    let base = audio_base(spec.input);
+    let mut summary = SliceSummary::default();
+    let engine = Batch {
+        input: spec.input,
+        survey: &survey,
+        clips: survey.clips,
+        pool: &pool,
+        on_event,
     };
-    let mut rejects: Vec<Reject> = manifest
-        .problems
-        .iter()
-        .cloned()
-        .map(Reject::from)
-        .collect();
-    let (mut slices, mut left_out) = (Vec::new(), Vec::new());
-    for result in results {
-        match result {
-            Ok(done) => {
-                summary.clips_sliced += 1;
-                summary.slices += done.slices.len();
-                summary.seconds_out += done.seconds_out;
-                summary.speech_kept += done.speech_kept;
-                summary.speech_left_out += done.speech_left_out;
-                slices.extend(done.slices);
-                left_out.extend(done.left_out);
+    summary.clips_in = engine.for_each_clip(
+        &|_| true,
+        &|entry| clip::slice_clip(spec, base, entry),
+        &mut |outcome| {
+            match outcome {
+                Ok(done) => {
+                    summary.add(&done);
+                    for c in &done.slices {
+                        earlier.keep(&c.audio);
+                    }
+                    slices_out.write_all(&done.slices)?;
+                    left_out_out.write_all(&done.left_out)?;
+                }
+                Err(reject) => {
+                    summary.rejected += 1;
+                    rejects_out.write(&reject)?;
+                }
             }
-            Err(r) => rejects.push(r),
-        }
-    }
-    rejects.sort_by_key(|r| r.line);
-    summary.rejected = rejects.len();
-    summary.left_out = left_out.len();
+            Ok(())
+        },
+    )?;
     sync_dir(&dir).map_err(RunError::output(&dir))?;
-    write_atomically(&spec.out.join(MANIFEST_NAME), |w| {
-        write_manifest(w, &slices)
-    })?;
-    write_jsonl(&spec.out.join(LEFT_OUT_NAME), &left_out)?;
-    write_jsonl(&spec.out.join(REJECTS_NAME), &rejects)?;
-    let kept: std::collections::HashSet<&str> = slices.iter().map(|c| c.audio.as_str()).collect();
-    earlier.finish(&kept).map_err(RunError::output(spec.out))?;
+    slices_out.commit()?;
+    left_out_out.commit()?;
+    rejects_out.commit()?;
+    earlier
+        .finish(&HashSet::new())
+        .map_err(RunError::output(spec.out))?;
     summary.wall_seconds = started.elapsed().as_secs_f64();
     Ok(summary)
 }
 
-fn write_jsonl<T: Serialize>(path: &Path, records: &[T]) -> Result<(), RunError> {
-    use std::io::Write;
-    write_atomically(path, |w| {
-        for r in records {
-            serde_json::to_writer(&mut *w, r)?;
-            w.write_all(b"\n")?;
-        }
-        Ok(())
-    })
+impl SliceSummary {
+    /// Count a sliced clip.
+    fn add(&mut self, done: &clip::ClipOutcome) {
+        self.clips_sliced += 1;
+        self.slices += done.slices.len();
+        self.seconds_out += done.seconds_out;
+        self.speech_kept += done.speech_kept;
+        self.speech_left_out += done.speech_left_out;
+        self.left_out += done.left_out.len();
+    }
 }

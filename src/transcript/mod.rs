@@ -192,8 +192,13 @@ pub struct Manifest {
 impl Manifest {
     /// The folder audio paths are relative to.
     pub fn base(&self) -> &Path {
-        self.path.parent().unwrap_or(Path::new("."))
+        audio_base(&self.path)
     }
+}
+
+/// The folder the audio paths of manifest `manifest` are relative to: its own.
+pub fn audio_base(manifest: &Path) -> &Path {
+    manifest.parent().unwrap_or(Path::new("."))
 }
 
 /// Read a JSON Lines manifest. A bad line (empty, not UTF-8, not JSON, wrong field type,
