@@ -2,7 +2,8 @@
 //! one step per recipe (and a FLAC writer), `retake run --threads 1`, peak resident memory
 //! from GNU time (`/usr/bin/time -f %M`, Debian package `time`). Also the clip-count
 //! table: 1,000 / 10,000 / 100,000 short clips, peak memory and wall time per clip.
-//! Run with `cargo bench --bench memory`; it prints, asserts nothing.
+//! Run with `cargo bench --bench memory` (`-- --long-only` or `-- --counts-only` for one
+//! table); it prints, asserts nothing.
 //!
 //! Baseline of each ratio: the model's prediction (`predicted`), and for the clip-count
 //! table the 1,000-clip run.
@@ -203,8 +204,11 @@ fn clip_count_table(dir: &Path) {
 
 fn main() {
     let dir = tempfile::tempdir().unwrap();
-    long_clip_table(dir.path());
-    if std::env::args().any(|a| a == "--long-only") {
+    let asked = |flag: &str| std::env::args().any(|a| a == flag);
+    if !asked("--counts-only") {
+        long_clip_table(dir.path());
+    }
+    if asked("--long-only") {
         return;
     }
     clip_count_table(dir.path());

@@ -275,8 +275,9 @@ pub fn write_audio_atomically(
 
 /// Rate and frames of an audio file this tool wrote, when it is whole: a WAV whose RIFF
 /// length matches the file's length (so it was finished and not cut short since), or a
-/// FLAC file's STREAMINFO (a FLAC file is written whole, then renamed; its frames are not
-/// checked further). `None` for a missing, unreadable, unfinished or truncated file.
+/// FLAC file whose last bytes are the whole last frame its STREAMINFO calls for
+/// ([`crate::audio::flac_tail`]). `None` for a missing, unreadable, unfinished or truncated
+/// file.
 pub fn whole_audio_frames(path: &Path) -> Option<(u32, u64)> {
     use std::io::Read;
     let mut file = std::fs::File::open(path).ok()?;
@@ -284,7 +285,7 @@ pub fn whole_audio_frames(path: &Path) -> Option<(u32, u64)> {
     let mut head = [0u8; 8];
     file.read_exact(&mut head).ok()?;
     if &head[..4] == b"fLaC" {
-        return flac_frames(&head, &mut file);
+        return flac_frames(&head, &mut file, len);
     }
     let riff = u32::from_le_bytes([head[4], head[5], head[6], head[7]]);
     if &head[..4] != b"RIFF" || u64::from(riff) + 8 != len {
@@ -297,20 +298,28 @@ pub fn whole_audio_frames(path: &Path) -> Option<(u32, u64)> {
     (data <= len).then_some((spec.sample_rate, frames))
 }
 
-/// Rate and total samples from a FLAC file's STREAMINFO block (the first metadata block,
-/// 34 bytes: rate in 20 bits, channels and depth, then total samples in 36 bits).
-fn flac_frames(head: &[u8; 8], file: &mut std::fs::File) -> Option<(u32, u64)> {
-    use std::io::Read;
+/// Rate and total samples of a FLAC file from its STREAMINFO block (the first metadata
+/// block, 34 bytes), when the file ends with the whole last frame it calls for.
+fn flac_frames(head: &[u8; 8], file: &mut std::fs::File, len: u64) -> Option<(u32, u64)> {
+    use std::io::{Read, Seek, SeekFrom};
     // Block header: type 0 (STREAMINFO) in the low 7 bits, length 34.
     if head[4] & 0x7F != 0 || head[5..8] != [0, 0, 34] {
         return None;
     }
     let mut info = [0u8; 34];
     file.read_exact(&mut info).ok()?;
-    let packed = u64::from_be_bytes(info[10..18].try_into().ok()?);
-    let rate = (packed >> 44) as u32;
-    let frames = packed & ((1 << 36) - 1);
-    (rate > 0).then_some((rate, frames))
+    let info = crate::audio::flac_tail::StreamInfo::parse(&info)?;
+    // The last frame lies within its largest size (or a generous bound when unknown).
+    let span = match info.max_frame_bytes {
+        0 => 1 << 20,
+        n => u64::from(n) + 2,
+    }
+    .min(len.saturating_sub(42));
+    file.seek(SeekFrom::Start(len - span)).ok()?;
+    let mut tail = vec![0u8; span as usize];
+    file.read_exact(&mut tail).ok()?;
+    crate::audio::flac_tail::ends_with_last_frame(&tail, &info)
+        .then_some((info.rate, info.total_samples))
 }
 
 #[cfg(test)]

@@ -182,9 +182,14 @@ fn a_rerun_keeps_whole_flac_takes_and_remakes_a_damaged_one() {
     let mut damaged = before.clone();
     damaged[21] ^= 0x01;
     std::fs::write(&take, &damaged).unwrap();
+    // A file cut short behind a whole header: its last frame is gone, so it is made again.
+    let cut = out.join("takes/pick-a-001.t0.flac");
+    let whole = std::fs::read(&cut).unwrap();
+    std::fs::write(&cut, &whole[..whole.len() - 10]).unwrap();
     let o = run_demo(&tmp.path().join("flac24.toml"), &out);
     let said = String::from_utf8_lossy(&o.stdout);
     assert_eq!(o.status.code(), Some(0), "{said}");
-    assert!(said.contains("kept    9 clips (18 takes"), "{said}");
+    assert!(said.contains("kept    8 clips (16 takes"), "{said}");
     assert_eq!(std::fs::read(&take).unwrap(), before);
+    assert_eq!(std::fs::read(&cut).unwrap(), whole);
 }

@@ -122,8 +122,12 @@ def run(
     out: _Path,
     threads: Optional[int] = None,
     progress: Optional[Callable[[int, int, bool], Any]] = None,
+    max_clip_memory: int = 4096,
 ) -> Dict[str, Any]:
-    """Run a whole batch, exactly as `retake run`; returns the summary figures."""
+    """Run a whole batch, exactly as `retake run`; returns the summary figures.
+
+    `max_clip_memory` (MiB, as `--max-clip-memory`): a clip that would need more in one
+    worker is a reject pointing at `retake slice`."""
 
 def decode(path: _Path, channels: Union[str, int, None] = None) -> Tuple[npt.NDArray[np.float32], int]:
     """Decode an audio file with the library's decoder, as (mono samples, rate)."""

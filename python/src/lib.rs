@@ -560,9 +560,12 @@ fn write_manifest(py: Python<'_>, path: PathBuf, records: &Bound<'_, PyAny>) -> 
 
 /// Run a whole batch, exactly as `retake run RECIPE MANIFEST OUT`: takes, manifest,
 /// rejects, resume. `progress(done, total, ok)` is called after each clip (from worker
-/// threads, holding the GIL only for the call). Returns the run's summary figures.
+/// threads, holding the GIL only for the call). `max_clip_memory` (MiB, as the CLI's
+/// `--max-clip-memory`) is the memory one worker may need for one clip; a longer clip is a
+/// reject pointing at `retake slice`. Returns the run's summary figures.
 #[pyfunction]
-#[pyo3(signature = (recipe, manifest, out, threads = None, progress = None))]
+#[pyo3(signature = (recipe, manifest, out, threads = None, progress = None, max_clip_memory = retake::memory::DEFAULT_LIMIT_BYTES >> 20))]
+#[allow(clippy::too_many_arguments)]
 fn run<'py>(
     py: Python<'py>,
     recipe: &Recipe,
@@ -570,7 +573,14 @@ fn run<'py>(
     out: PathBuf,
     threads: Option<usize>,
     progress: Option<Py<PyAny>>,
+    max_clip_memory: u64,
 ) -> PyResult<Bound<'py, PyDict>> {
+    if max_clip_memory == 0 || max_clip_memory > 1 << 30 {
+        return Err(PyValueError::new_err(format!(
+            "max_clip_memory: {max_clip_memory} MiB: expected 1 to {}",
+            1u64 << 30
+        )));
+    }
     use std::sync::Mutex;
     use std::sync::atomic::{AtomicUsize, Ordering};
     let total = AtomicUsize::new(0);
@@ -603,7 +613,7 @@ fn run<'py>(
         out: &out,
         threads,
         shard: None,
-        clip_memory_limit: retake::memory::DEFAULT_LIMIT_BYTES,
+        clip_memory_limit: max_clip_memory << 20,
     };
     let result = py.detach(|| retake::run::run(&spec, &on_event));
     if let Some(err) = failed.into_inner().unwrap_or_else(|p| p.into_inner()) {

@@ -94,3 +94,29 @@ def test_write_and_read_manifest_round_trip(tmp_path):
     retake.write_manifest(path, records)
     assert retake.read_manifest(path) == records
     assert [r["id"] for r in read_jsonl(path)] == [r["id"] for r in records]
+
+
+def test_a_batch_run_in_process_writes_what_the_cli_writes(tmp_path):
+    recipe_file, out, _ = run_cli(tmp_path, demo_recipe_text())
+    recipe = retake.Recipe.load(recipe_file)
+    calls = []
+    here = tmp_path / "in-process"
+    summary = retake.run(recipe, DEMO / "manifest.jsonl", here, threads=2,
+                         progress=lambda done, total, ok: calls.append((done, total, ok)))
+    assert summary["clips_done"] == 10 and summary["takes"] == 40 and summary["rejected"] == 0
+    assert sorted(c[0] for c in calls) == list(range(1, 11)) and {c[1] for c in calls} == {10}
+    for name in ["manifest.jsonl", "rejects.jsonl"]:
+        assert (here / name).read_bytes() == (out / name).read_bytes(), name
+    for line in read_jsonl(out / "manifest.jsonl"):
+        assert (here / line["audio"]).read_bytes() == (out / line["audio"]).read_bytes()
+
+    # The memory limit is the CLI's `--max-clip-memory`: 1 MiB turns every clip into the
+    # same reject, pointing at `retake slice`.
+    small = tmp_path / "small"
+    summary = retake.run(recipe, DEMO / "manifest.jsonl", small, max_clip_memory=1)
+    assert summary["rejected"] == 10 and summary["takes"] == 0
+    cli("run", recipe_file, "-i", DEMO / "manifest.jsonl", "-o", tmp_path / "small-cli",
+        "--max-clip-memory", "1")
+    rejects = (small / "rejects.jsonl").read_text(encoding="utf-8")
+    assert rejects == (tmp_path / "small-cli" / "rejects.jsonl").read_text(encoding="utf-8")
+    assert all("retake slice" in r["reason"] for r in read_jsonl(small / "rejects.jsonl"))

@@ -9,6 +9,7 @@ use serde::{Deserialize, Serialize};
 
 mod decode;
 mod encode;
+pub mod flac_tail;
 pub mod format;
 
 pub use decode::{Scan, Stream, decode, scan};
