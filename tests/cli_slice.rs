@@ -422,7 +422,7 @@ fn a_line_without_words_longer_than_the_longest_is_left_out_and_the_rest_comes_t
     let out = tmp.path().join("out");
     let (code, stdout) = slice(&manifest, &out, &[]);
     assert_eq!(code, Some(3), "{stdout}");
-    assert!(stdout.contains("1 stretches left out"), "{stdout}");
+    assert!(stdout.contains("1 stretch left out"), "{stdout}");
     let left = read_jsonl(&out.join("left_out.jsonl"));
     assert_eq!(left.len(), 1);
     assert_eq!(left[0]["source"], "yard-tannoy");

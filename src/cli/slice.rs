@@ -109,8 +109,13 @@ pub fn slice(args: SliceArgs) -> ExitCode {
 }
 
 fn print_summary(s: &SliceSummary, out: &Path) {
+    let stretches = if s.left_out == 1 {
+        "stretch"
+    } else {
+        "stretches"
+    };
     println!(
-        "{} clips in, {} slices out ({:.3} h of audio), {:.3} h of speech kept, {} stretches \
+        "{} clips in, {} slices out ({:.3} h of audio), {:.3} h of speech kept, {} {stretches} \
          left out ({:.1} s of speech), {} rejected; {:.1} s",
         s.clips_in,
         s.slices,
