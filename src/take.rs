@@ -239,7 +239,7 @@ pub fn make_take(
         }
         records.push(record);
     }
-    if let Some(i) = audio.samples.iter().position(|s| !s.is_finite()) {
+    if let Some(i) = audio.first_non_finite() {
         return Err(fail(
             ClipErrorKind::Take,
             "",

@@ -89,11 +89,7 @@ impl Scan {
         Scan {
             rate: audio.rate,
             frames: audio.samples.len() as u64,
-            first_non_finite: audio
-                .samples
-                .iter()
-                .position(|s| !s.is_finite())
-                .map(|i| i as u64),
+            first_non_finite: audio.first_non_finite().map(|i| i as u64),
         }
     }
 
@@ -113,10 +109,7 @@ pub fn scan(path: &Path, channels: ChannelPolicy) -> Result<Scan, AudioError> {
     let (mut frames, mut first_non_finite, mut buf) = (0u64, None, Vec::new());
     while stream.read_into(&mut buf)? {
         if first_non_finite.is_none() {
-            first_non_finite = buf
-                .iter()
-                .position(|s| !s.is_finite())
-                .map(|i| frames + i as u64);
+            first_non_finite = super::first_non_finite(&buf).map(|i| frames + i as u64);
         }
         frames += buf.len() as u64;
         buf.clear();

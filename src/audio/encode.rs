@@ -49,7 +49,7 @@ pub fn to_i24(x: f32) -> i32 {
 ///   error kind. A file left half-written by a writer failing after creating it is removed,
 ///   best effort.
 pub fn write_audio(path: &Path, audio: &Audio, format: SampleFormat) -> Result<(), AudioError> {
-    if let Some(index) = audio.samples.iter().position(|x| !x.is_finite()) {
+    if let Some(index) = audio.first_non_finite() {
         return Err(AudioError::NotFinite {
             path: path.to_path_buf(),
             index,

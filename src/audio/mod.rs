@@ -30,6 +30,35 @@ impl Audio {
     pub fn duration(&self) -> f64 {
         self.samples.len() as f64 / f64::from(self.rate)
     }
+
+    /// Index of the first NaN or infinite sample, if any (see [`first_non_finite`]).
+    pub fn first_non_finite(&self) -> Option<usize> {
+        first_non_finite(&self.samples)
+    }
+}
+
+/// Index of the first NaN or infinite sample, if any.
+///
+/// Every step's input and output and every written file is checked, so this runs several
+/// times per take: blocks of 64 are tested without a branch per sample (an all-ones
+/// exponent is what NaN and the infinities share), which the compiler vectorises, and only
+/// a block that fails is searched sample by sample.
+pub fn first_non_finite(samples: &[f32]) -> Option<usize> {
+    const BLOCK: usize = 64;
+    const EXPONENT: u32 = 0x7f80_0000;
+    samples.chunks(BLOCK).enumerate().find_map(|(b, block)| {
+        let bad = block
+            .iter()
+            .fold(false, |bad, s| bad | (s.to_bits() & EXPONENT == EXPONENT));
+        if bad {
+            block
+                .iter()
+                .position(|s| !s.is_finite())
+                .map(|i| b * BLOCK + i)
+        } else {
+            None
+        }
+    })
 }
 
 /// How a multichannel file becomes the one channel steps work on.
@@ -186,4 +215,43 @@ pub fn usable(path: &Path, scan: &Scan, target_rate: Option<u32>) -> Result<(), 
         });
     }
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::first_non_finite;
+
+    #[test]
+    fn first_non_finite_finds_the_first_bad_sample_at_every_position() {
+        // The values IEEE 754 calls not finite, at every offset around block edges, with a
+        // second bad sample later that must not be the one reported.
+        for bad in [f32::NAN, f32::INFINITY, f32::NEG_INFINITY, -f32::NAN] {
+            for len in [1usize, 63, 64, 65, 200] {
+                for at in 0..len {
+                    let mut x: Vec<f32> = (0..len).map(|i| (i as f32 * 0.37).sin()).collect();
+                    x[at] = bad;
+                    if at + 70 < len {
+                        x[at + 70] = f32::NAN;
+                    }
+                    assert_eq!(first_non_finite(&x), Some(at), "len {len}, at {at}");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn extreme_finite_values_pass() {
+        let x = [
+            f32::MAX,
+            f32::MIN,
+            f32::MIN_POSITIVE,
+            1e-45,
+            -0.0,
+            0.0,
+            1.0,
+            -1.0,
+        ];
+        assert_eq!(first_non_finite(&x), None);
+        assert_eq!(first_non_finite(&[]), None);
+    }
 }

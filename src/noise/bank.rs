@@ -150,7 +150,7 @@ fn load_one(path: &Path, rate: u32) -> Result<Vec<f32>, String> {
     if audio.samples.is_empty() {
         return Err("holds no samples".to_string());
     }
-    if let Some(i) = audio.samples.iter().position(|s| !s.is_finite()) {
+    if let Some(i) = audio.first_non_finite() {
         return Err(format!("sample {i} is not finite"));
     }
     let samples = resample(&audio.samples, audio.rate, rate);

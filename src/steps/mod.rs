@@ -146,7 +146,7 @@ pub fn run_step(
     if audio.samples.is_empty() {
         return Err(fail("the take is empty".into()));
     }
-    if let Some(i) = first_non_finite(&audio) {
+    if let Some(i) = audio.first_non_finite() {
         return Err(fail(format!(
             "sample {i} of the take is not finite before this step"
         )));
@@ -154,7 +154,7 @@ pub fn run_step(
     let out = step.apply(audio, take, rng)?;
     let signals = std::iter::once(("", &out.audio)).chain(out.stems.iter().map(|(n, a)| (*n, a)));
     for (stem, signal) in signals {
-        if let Some(i) = first_non_finite(signal) {
+        if let Some(i) = signal.first_non_finite() {
             let what = if stem.is_empty() {
                 String::from("its result")
             } else {
@@ -168,10 +168,6 @@ pub fn run_step(
         }
     }
     Ok(out)
-}
-
-fn first_non_finite(audio: &Audio) -> Option<usize> {
-    audio.samples.iter().position(|s| !s.is_finite())
 }
 
 /// Reads a step's keys from its `[[step]]` table.
