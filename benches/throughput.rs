@@ -7,45 +7,19 @@
 //! pass that lets every worker build its resamplers. Audio seconds are counted at the
 //! input.
 
+mod common;
+
 use std::time::Instant;
 
+use common::{SECONDS, clips, drawn, run_plan_step, step_plan};
 use rayon::prelude::*;
-use retake::audio::Audio;
 use retake::dsp::resample::{resample, speed};
-use retake::seed::TakeRng;
-use retake::steps::{TakeContext, run_step};
 
 const CLIPS: usize = 200;
-const DISTINCT: usize = 20;
-const SECONDS: f64 = 5.0;
 const PASSES: usize = 7;
 
 /// The work done on one clip (its index and samples).
 type Work<'a> = dyn Fn(usize, &[f32]) + Sync + 'a;
-
-/// Distinct noise clips at `rate` (a fixed LCG, so every run measures the same data).
-fn clips(rate: u32) -> Vec<Vec<f32>> {
-    let n = (SECONDS * f64::from(rate)) as usize;
-    let mut state: u64 = 0x2545_f491_4f6c_dd1d;
-    (0..DISTINCT)
-        .map(|_| {
-            (0..n)
-                .map(|_| {
-                    state = state
-                        .wrapping_mul(6_364_136_223_846_793_005)
-                        .wrapping_add(1_442_695_040_888_963_407);
-                    ((state >> 40) as f32 / (1u64 << 24) as f32 - 0.5) * 0.5
-                })
-                .collect()
-        })
-        .collect()
-}
-
-/// A factor drawn per take from a range, as `factor = { low = 0.9, high = 1.1 }` does: not
-/// a simple fraction, so it runs on the free-ratio engine.
-fn drawn(i: usize) -> f64 {
-    0.9 + 0.2 * ((i * 7919) % 1000) as f64 / 1000.0 + 1.234_567e-7
-}
 
 /// Median audio seconds per wall second of `work` over every clip, in `pool`.
 fn measure(pool: &rayon::ThreadPool, clips: &[Vec<f32>], work: &Work<'_>) -> f64 {
@@ -94,36 +68,11 @@ fn main() {
         ("room, simulated, drawn size, RT60 0.3-0.8 s", "do = \"room\"\nwidth_m = { low = 3, high = 8 }\nlength_m = { low = 4, high = 10 }\nheight_m = 3\nrt60_s = { low = 0.3, high = 0.8 }\nmax_ir_s = 1.0"),
     ]
     .into_iter()
-    .map(|(name, step)| {
-        let plan = retake::recipe::parse(
-            &std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("bench.toml"),
-            &format!("takes = 1\n[[step]]\n{step}\n"),
-        )
-        .expect("bench recipe");
-        (name, plan)
-    })
+    .map(|(name, step)| (name, step_plan(step)))
     .collect();
-    let lines = [(0.2, SECONDS - 0.2)];
-    let step_work = |plan: &retake::recipe::Plan, i: usize, x: &[f32]| {
-        let take = TakeContext {
-            lines: &lines,
-            words: &lines,
-        };
-        let audio = Audio {
-            rate: 16_000,
-            samples: x.to_vec(),
-        };
-        let out = run_step(
-            plan.steps[0].step.as_ref(),
-            audio,
-            &take,
-            &mut TakeRng::new(i as u64),
-        );
-        std::hint::black_box(out.expect("step"));
-    };
     for (name, plan) in &step_plans {
         for (label, pool) in &pools {
-            let rate = measure(pool, &at_16k, &|i, x| step_work(plan, i, x));
+            let rate = measure(pool, &at_16k, &|i, x| run_plan_step(plan, i, x));
             println!("{name}, {label}: {rate:.0} s of audio per second");
         }
     }
