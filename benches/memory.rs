@@ -52,13 +52,14 @@ fn root() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
 }
 
-/// Peak resident memory (bytes) and wall seconds of one `retake run`.
-fn peak(args: &[&str]) -> (u64, f64) {
+/// Peak resident memory (bytes), wall seconds and CPU seconds (user + system) of one
+/// `retake run`. CPU time resists a shared machine's load better than wall time.
+fn peak(args: &[&str]) -> (u64, f64, f64) {
     let dir = tempfile::tempdir().unwrap();
     let report = dir.path().join("time.txt");
     let started = Instant::now();
     let status = Command::new("/usr/bin/time")
-        .args(["-f", "%M", "-o", report.to_str().unwrap()])
+        .args(["-f", "%M %U %S", "-o", report.to_str().unwrap()])
         .arg(env!("CARGO_BIN_EXE_retake"))
         .args(args)
         .output()
@@ -70,8 +71,10 @@ fn peak(args: &[&str]) -> (u64, f64) {
         String::from_utf8_lossy(&status.stderr)
     );
     let text = std::fs::read_to_string(&report).unwrap();
-    let kib: u64 = text.lines().last().unwrap().trim().parse().unwrap();
-    (kib * 1024, wall)
+    let fields: Vec<&str> = text.lines().last().unwrap().split_whitespace().collect();
+    let kib: u64 = fields[0].parse().unwrap();
+    let cpu = fields[1].parse::<f64>().unwrap() + fields[2].parse::<f64>().unwrap();
+    (kib * 1024, wall, cpu)
 }
 
 fn write_clip(path: &Path, seconds: f64, seed: u32) {
@@ -137,7 +140,7 @@ fn long_clip_table(dir: &Path) {
         );
         let out = dir.join("out");
         let _ = std::fs::remove_dir_all(&out);
-        let (measured, _) = peak(&[
+        let (measured, _, _) = peak(&[
             "run",
             recipe.to_str().unwrap(),
             "-i",
@@ -165,10 +168,10 @@ fn clip_count_table(dir: &Path) {
     std::fs::write(&recipe, "takes = 1\n[[step]]\ndo = \"gain\"\ndb = 1.0\n").unwrap();
     println!("\nshort clips (0.5 s, gain, one take), all cores");
     println!(
-        "{:>8} {:>10} {:>8} {:>10} {:>12}",
-        "clips", "peak", "ratio", "wall s", "ms per clip"
+        "{:>8} {:>10} {:>8} {:>10} {:>12} {:>10} {:>16}",
+        "clips", "peak", "ratio", "wall s", "ms per clip", "CPU s", "CPU ms per clip"
     );
-    let mut base: Option<(u64, f64)> = None;
+    let mut base: Option<(u64, f64, f64)> = None;
     for n in [1_000usize, 10_000, 100_000] {
         let manifest = dir.join(format!("n{n}.jsonl"));
         let text: String = (0..n)
@@ -181,7 +184,7 @@ fn clip_count_table(dir: &Path) {
             .collect();
         std::fs::write(&manifest, text).unwrap();
         let out = dir.join(format!("out{n}"));
-        let (rss, wall) = peak(&[
+        let (rss, wall, cpu) = peak(&[
             "run",
             recipe.to_str().unwrap(),
             "-i",
@@ -190,14 +193,18 @@ fn clip_count_table(dir: &Path) {
             out.to_str().unwrap(),
         ]);
         let _ = std::fs::remove_dir_all(&out);
-        let (b_rss, b_wall) = *base.get_or_insert((rss, wall));
+        let (b_rss, b_wall, b_cpu) = *base.get_or_insert((rss, wall, cpu));
         println!(
-            "{n:>8} {:>7.1} MB {:>8.2} {:>10.2} {:>12.3}  (wall per clip vs 1,000: {:.2})",
+            "{n:>8} {:>7.1} MB {:>8.2} {:>10.2} {:>12.3} {:>10.2} {:>16.3}  \
+             (per clip vs 1,000: wall {:.2}, CPU {:.2})",
             rss as f64 / 1e6,
             rss as f64 / b_rss as f64,
             wall,
             1000.0 * wall / n as f64,
-            (wall / n as f64) / (b_wall / 1000.0)
+            cpu,
+            1000.0 * cpu / n as f64,
+            (wall / n as f64) / (b_wall / 1000.0),
+            (cpu / n as f64) / (b_cpu / 1000.0)
         );
     }
 }
